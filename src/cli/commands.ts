@@ -1,0 +1,13 @@
+import type { Command } from 'commander';
+import { register as check } from './check.js';
+import { register as init } from './init.js';
+import { register as schema } from './schema.js';
+import { register as run } from './run.js';
+import { register as status } from './status.js';
+import { register as lineage } from './lineage.js';
+import { register as retry } from './retry.js';
+
+/** Every subcommand, one file each under src/cli/. */
+export function registerCommands(program: Command): void {
+  for (const register of [init, schema, run, status, retry, lineage, check]) register(program);
+}
