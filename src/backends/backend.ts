@@ -73,6 +73,11 @@ export interface Submission {
   id: string;
   /** Scheduler job id (for local: a per-run counter or pid). Recorded in the ledger before the next submit. */
   job_id: string;
+  /**
+   * Absolute task directory (where exit.json is read). Backends fill it in; a caller polling or
+   * cancelling submissions made by an earlier process (after a restart) must set it.
+   */
+  dir?: string;
 }
 
 export interface Backend {

@@ -1,4 +1,186 @@
-import type { Command } from 'commander';
+import { InvalidArgumentError, type Command } from 'commander';
+import {
+  checkCommittee,
+  checkContacts,
+  checkDrift,
+  checkErrors,
+  COMMITTEE_DEFAULTS,
+  CONTACTS_DEFAULTS,
+  DRIFT_DEFAULTS,
+  ERRORS_DEFAULTS,
+  type GateResult,
+} from '../gates/index.js';
+import { reportCheck } from '../gates/run.js';
 
-// Placeholder until the 'check' command lands.
-export function register(_program: Command): void {}
+const number = (value: string): number => {
+  const x = Number(value);
+  if (value.trim() === '' || !Number.isFinite(x)) throw new InvalidArgumentError(`expected a number, found '${value}'`);
+  return x;
+};
+const positive = (value: string): number => {
+  const x = number(value);
+  if (!(x > 0)) throw new InvalidArgumentError(`expected a positive number, found '${value}'`);
+  return x;
+};
+const count = (value: string): number => {
+  const x = number(value);
+  if (!Number.isInteger(x) || x < 1) throw new InvalidArgumentError(`expected a positive whole number, found '${value}'`);
+  return x;
+};
+const oneOf =
+  (...choices: string[]) =>
+  (value: string): string => {
+    if (!choices.includes(value)) throw new InvalidArgumentError(`expected one of ${choices.join(', ')}, found '${value}'`);
+    return value;
+  };
+/** --pair-limit A-B=2.5 (repeatable; also comma-separated). */
+const pairLimit = (value: string, previous: Record<string, number> = {}): Record<string, number> => {
+  const out = { ...previous };
+  for (const item of value.split(',')) {
+    const m = /^\s*([^=\s]+-[^=\s]+)\s*=\s*(\S+)\s*$/.exec(item);
+    const x = m ? Number(m[2]) : NaN;
+    if (!m || !(x > 0)) throw new InvalidArgumentError(`expected SPECIES-SPECIES=DISTANCE in Å such as O-H=0.8, found '${item}'`);
+    out[m[1]] = x;
+  }
+  return out;
+};
+
+/** `ratchet check contacts|drift|errors|committee FILE... [options] [--json]`. */
+export function register(program: Command): void {
+  const check = program
+    .command('check')
+    .description('physical checks of extended XYZ files (contacts, drift, errors, committee); exit 0 pass/warn, 1 fail, 2 bad input');
+  // usage errors are bad input: exit code 2 (help and version stay 0)
+  check.exitOverride((err) => process.exit(err.exitCode === 0 ? 0 : 2));
+  const run = (gate: string, json: boolean | undefined, work: () => Promise<GateResult<object>>) =>
+    reportCheck(gate, work, { json }).then((code) => {
+      process.exitCode = code;
+    });
+
+  check
+    .command('contacts')
+    .description('closest distances overall and per species pair, and every pair closer than its limit')
+    .argument('<files...>', 'extended XYZ files (frames numbered across the files in order)')
+    .option('--scale <x>', 'limit = x times the sum of covalent radii (Cordero et al. 2008)', positive, CONTACTS_DEFAULTS.scale)
+    .option('--pair-limit <A-B=Å>', 'explicit limit in Å for a species pair (repeatable, or comma-separated)', pairLimit)
+    .option('--max-per-frame <n>', 'violations listed per frame (all are counted)', count, CONTACTS_DEFAULTS.maxPerFrame)
+    .option('--max-violations <n>', 'violations listed in total (all are counted)', count, CONTACTS_DEFAULTS.maxViolations)
+    .option('--workers <n>', 'worker threads (default min(2, cpus))', count)
+    .option('--json', 'print one JSON object')
+    .action((files: string[], o) =>
+      run('contacts', o.json, () =>
+        checkContacts(files, {
+          scale: o.scale,
+          pairLimits: o.pairLimit,
+          maxPerFrame: o.maxPerFrame,
+          maxViolations: o.maxViolations,
+          workers: o.workers,
+        }),
+      ),
+    );
+
+  check
+    .command('drift')
+    .description('total energy per atom against time: slope, spread, excursion, temperature; fails a run that blew up')
+    .argument('<files...>', 'extended XYZ files or thermo tables (CSV or whitespace, header row), read as one run in order')
+    .option('--format <kind>', 'auto, xyz or table (auto: .csv .tsv .dat .txt .log .thermo .out are tables)', oneOf('auto', 'xyz', 'table'), 'auto')
+    .option('--timestep <fs>', 'MD time step: time = step x it, or frame index x it when frames carry no time or step', positive)
+    .option('--dof <n>', 'degrees of freedom for the temperature (default 3N-3 periodic, 3N otherwise)', count)
+    .option('--energy-source <s>', 'auto (total_energy if present, else energy + kinetic), total or kinetic', oneOf('auto', 'total', 'kinetic'), 'auto')
+    .option('--total-key <key>', 'info key of the total energy (eV)', 'total_energy')
+    .option('--energy-key <key>', 'info key of the potential energy (eV)', 'energy')
+    .option('--velocities-key <key>', 'per-atom velocities (Å/fs)', 'velocities')
+    .option('--time-key <key>', 'info key of the time (fs)', 'time')
+    .option('--atoms <n>', 'thermo tables: number of atoms (1 if the energy column is per atom)', count)
+    .option('--time-column <name>', 'thermo tables: time column (default time, time_fs or t)')
+    .option('--step-column <name>', 'thermo tables: step column, used with --timestep')
+    .option('--energy-column <name>', 'thermo tables: total energy column, eV (default total_energy, etot, toteng, etotal, e_tot)')
+    .option('--temperature-column <name>', 'thermo tables: temperature column, K (default temperature or temp)')
+    .option('--time-unit <unit>', 'thermo tables: unit of the time column, fs or ps', oneOf('fs', 'ps'), 'fs')
+    .option('--slope-warn <meV>', 'warn above this |slope|, meV/atom/ps', positive, DRIFT_DEFAULTS.slopeWarn)
+    .option('--slope-fail <meV>', 'fail above this |slope|, meV/atom/ps', positive, DRIFT_DEFAULTS.slopeFail)
+    .option('--excursion-warn <meV>', 'warn above this max |E(t)-E(0)|, meV/atom', positive, DRIFT_DEFAULTS.excursionWarn)
+    .option('--excursion-fail <meV>', 'fail above this max |E(t)-E(0)|, meV/atom', positive, DRIFT_DEFAULTS.excursionFail)
+    .option('--workers <n>', 'worker threads (default min(2, cpus))', count)
+    .option('--json', 'print one JSON object')
+    .action((files: string[], o) =>
+      run('drift', o.json, () =>
+        checkDrift(files, {
+          format: o.format,
+          timestep: o.timestep,
+          dof: o.dof,
+          source: o.energySource,
+          totalKey: o.totalKey,
+          energyKey: o.energyKey,
+          velocitiesKey: o.velocitiesKey,
+          timeKey: o.timeKey,
+          atoms: o.atoms,
+          timeColumn: o.timeColumn,
+          stepColumn: o.stepColumn,
+          energyColumn: o.energyColumn,
+          temperatureColumn: o.temperatureColumn,
+          timeUnit: o.timeUnit,
+          slopeWarn: o.slopeWarn,
+          slopeFail: o.slopeFail,
+          excursionWarn: o.excursionWarn,
+          excursionFail: o.excursionFail,
+          workers: o.workers,
+        }),
+      ),
+    );
+
+  check
+    .command('errors')
+    .description('energy and force errors of predictions against reference labels on the same frames')
+    .argument('<reference>', 'extended XYZ with the reference energies and forces')
+    .argument('<predicted>', 'extended XYZ with the predictions, same frames in the same order')
+    .option('--ref-energy-key <key>', 'info key of the reference energy (eV)', 'energy')
+    .option('--pred-energy-key <key>', 'info key of the predicted energy (eV)', 'energy')
+    .option('--ref-forces-key <key>', 'per-atom reference forces (eV/Å)', 'forces')
+    .option('--pred-forces-key <key>', 'per-atom predicted forces (eV/Å)', 'forces')
+    .option('--position-tolerance <Å>', 'largest position difference between the files', number, ERRORS_DEFAULTS.positionTolerance)
+    .option('--energy-rmse-warn <meV>', 'warn above this energy RMSE, meV/atom', positive, ERRORS_DEFAULTS.energyRmseWarn)
+    .option('--energy-rmse-fail <meV>', 'fail above this energy RMSE, meV/atom', positive, ERRORS_DEFAULTS.energyRmseFail)
+    .option('--force-rmse-warn <meV>', 'warn above this force RMSE, meV/Å', positive, ERRORS_DEFAULTS.forceRmseWarn)
+    .option('--force-rmse-fail <meV>', 'fail above this force RMSE, meV/Å', positive, ERRORS_DEFAULTS.forceRmseFail)
+    .option('--json', 'print one JSON object')
+    .action((reference: string, predicted: string, o) =>
+      run('errors', o.json, () =>
+        checkErrors(reference, predicted, {
+          refEnergyKey: o.refEnergyKey,
+          predEnergyKey: o.predEnergyKey,
+          refForcesKey: o.refForcesKey,
+          predForcesKey: o.predForcesKey,
+          positionTolerance: o.positionTolerance,
+          energyRmseWarn: o.energyRmseWarn,
+          energyRmseFail: o.energyRmseFail,
+          forceRmseWarn: o.forceRmseWarn,
+          forceRmseFail: o.forceRmseFail,
+        }),
+      ),
+    );
+
+  check
+    .command('committee')
+    .description("committee force spread per frame and each frame's band (confident, informative, runaway)")
+    .argument('<files...>', 'extended XYZ files with per-atom forces_0 ... forces_{M-1} (frames numbered across the files)')
+    .option('--lower <eV/Å>', 'lower edge of the informative window', number, COMMITTEE_DEFAULTS.lower)
+    .option('--upper <eV/Å>', 'upper edge of the informative window (runaway at or above)', number, COMMITTEE_DEFAULTS.upper)
+    .option('--prefix <name>', 'committee arrays are <prefix>0, <prefix>1, ...', COMMITTEE_DEFAULTS.prefix)
+    .option('--models <m>', 'number of models (default: as many arrays as the first frame has)', count)
+    .option('--max-runaway-fraction <x>', 'fail when more than this fraction of frames is runaway', number, COMMITTEE_DEFAULTS.maxRunawayFraction)
+    .option('--workers <n>', 'worker threads (default min(2, cpus))', count)
+    .option('--json', 'print one JSON object')
+    .action((files: string[], o) =>
+      run('committee', o.json, () =>
+        checkCommittee(files, {
+          lower: o.lower,
+          upper: o.upper,
+          prefix: o.prefix,
+          models: o.models,
+          maxRunawayFraction: o.maxRunawayFraction,
+          workers: o.workers,
+        }),
+      ),
+    );
+}

@@ -1,4 +1,19 @@
 import type { Command } from 'commander';
+import { runCampaign } from '../engine/run.js';
 
-// Placeholder until the 'retry' command lands.
-export function register(_program: Command): void {}
+/** `ratchet retry CAMPAIGN TASK|STAGE` */
+export function register(program: Command): void {
+  program
+    .command('retry')
+    .description('run failed tasks again as new attempts (a task like r0/label/0003, or every failed task of a stage like r0/label), then go on like run')
+    .argument('<campaign>', 'the campaign YAML file')
+    .argument('<target>', 'a task (r0/label/0003) or a stage (r0/label); a gate-blocked stage with no failed task is judged again')
+    .option('--backend <name>', "where tasks run (default: the campaign's backend.kind)")
+    .option('--jobs <n>', 'tasks at once on the local backend')
+    .option('--until <point>', 'stop before a round, a stage of a round or a stage, as for run')
+    .addHelpText('after', '\nExit codes: 0 finished or advanced, 1 blocked, 2 bad input (including a target that cannot be retried), 130 interrupted.')
+    .action(async (campaign: string, target: string, o: { backend?: string; jobs?: string; until?: string }) => {
+      const r = await runCampaign({ campaign, retry: target, backend: o.backend, jobs: o.jobs, until: o.until, handleSignals: true });
+      process.exitCode = r.exitCode;
+    });
+}

@@ -1,4 +1,20 @@
 import type { Command } from 'commander';
+import { runCampaign } from '../engine/run.js';
 
-// Placeholder until the 'run' command lands.
-export function register(_program: Command): void {}
+/** `ratchet run CAMPAIGN [--backend local] [--jobs N] [--until ROUND|STAGE] [--dry-run]` */
+export function register(program: Command): void {
+  program
+    .command('run')
+    .description('run a campaign: plan, run and judge its stages until it converges, is blocked, or reaches --until (resumes where it stopped)')
+    .argument('<campaign>', 'the campaign YAML file')
+    .option('--backend <name>', "where tasks run (default: the campaign's backend.kind)")
+    .option('--jobs <n>', 'tasks at once on the local backend (default: backend.jobs, else the number of cores)')
+    .option('--until <point>', 'stop before a round (2), a stage of a round (r1/train) or the next occurrence of a stage (train)')
+    .option('--dry-run', 'render the next step\'s scripts into .ratchet/plan/<time>/ and print what would run; runs nothing, writes no ledger event')
+    .option('--follow', 'on a cluster backend, keep polling until the stage\'s tasks end (local always waits)')
+    .addHelpText('after', '\nExit codes: 0 finished or advanced, 1 blocked by a gate or failed tasks, 2 bad input, 130 interrupted.')
+    .action(async (campaign: string, o: { backend?: string; jobs?: string; until?: string; dryRun?: boolean; follow?: boolean }) => {
+      const r = await runCampaign({ campaign, backend: o.backend, jobs: o.jobs, until: o.until, dryRun: o.dryRun, follow: o.follow, handleSignals: true });
+      process.exitCode = r.exitCode;
+    });
+}

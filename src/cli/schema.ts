@@ -1,4 +1,29 @@
 import type { Command } from 'commander';
+import { campaignJsonSchema } from '../campaign/jsonschema.js';
+import { CampaignError, loadCampaign } from '../campaign/load.js';
 
-// Placeholder until the 'schema' command lands.
-export function register(_program: Command): void {}
+/** `ratchet schema [CAMPAIGN]`: print the campaign JSON Schema, or check a campaign file against the full rules. */
+export function register(program: Command): void {
+  program
+    .command('schema')
+    .description('print the JSON Schema of campaign files (for editors); with CAMPAIGN, check that file instead')
+    .argument('[campaign]', 'a campaign file to check (schema, element symbols, names, files it refers to)')
+    .action(async (campaign: string | undefined) => {
+      if (campaign === undefined) {
+        process.stdout.write(JSON.stringify(campaignJsonSchema(), null, 2) + '\n');
+        return;
+      }
+      try {
+        const loaded = await loadCampaign(campaign);
+        const c = loaded.campaign;
+        process.stdout.write(
+          `${campaign}: valid campaign "${c.name}": ${c.species.join(' ')}, ${c.start.length} starting structure file(s), ` +
+            `${c.conditions.length} condition(s), committee of ${c.committee.size}, backend ${c.backend.kind}, sha256 ${loaded.sha256.slice(0, 12)}\n`,
+        );
+      } catch (err) {
+        if (!(err instanceof CampaignError)) throw err;
+        process.stderr.write(err.message + '\n');
+        process.exitCode = 2;
+      }
+    });
+}

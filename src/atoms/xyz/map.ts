@@ -1,36 +1,275 @@
-import type { Frame } from '../frame.js';
-import { readFrames } from './reader.js';
-
 /**
- * A per-frame job: a module exporting a pure function fn(frame, index, options) => result.
- * The result must survive structured cloning (plain objects, arrays, numbers, strings, typed arrays).
+ * mapFrames: apply a pure per-frame function to every frame of a file, results in file order.
+ *
+ * With workers > 1 the calling thread reads the file (inflating gzip itself: a gzip stream cannot be
+ * split by offset), finds frame boundaries with a native newline scan, copies whole frames into batches
+ * and transfers them to worker threads, which parse only the requested columns and apply the function.
+ * At most 2 batches per worker are in flight (backpressure), so memory stays bounded whatever the file
+ * size. Errors surface as the same XyzError (file and absolute line) as the sequential reader gives,
+ * and the first error in file order wins. Small files (under 2 batches) are read on the calling thread.
+ *
+ * Running from TypeScript sources (this module's URL ends in .ts, as under vitest or tsx), workers are
+ * started with `--import tsx`; when tsx cannot be found the work is done on the calling thread instead.
  */
-export interface FrameJob {
-  /** Absolute file URL (import.meta.url-style) of the module that exports the function. */
-  module: string;
-  /** Name of the exported function. */
-  fn: string;
-  /** Passed as the third argument. */
-  options?: unknown;
-  /** Per-atom properties the function needs besides species and pos (others may be skipped while parsing). */
-  columns?: string[];
-}
+import { readFileSync } from 'node:fs';
+import { stat } from 'node:fs/promises';
+import { dirname, join } from 'node:path';
+import { createRequire } from 'node:module';
+import { pathToFileURL } from 'node:url';
+import { Worker } from 'node:worker_threads';
+import type { Frame } from '../frame.js';
+import { deserializeError, SPAN_FIELDS, type BatchMessage, type FrameJob, type ReplyMessage } from './map-protocol.js';
+import { readFrames } from './reader.js';
+import { END, FrameScanner, type FrameSpan } from './scanner.js';
+import { openSource } from './source.js';
+
+export type { FrameJob } from './map-protocol.js';
 
 export interface MapOptions {
-  /** Worker threads to use; 1 means parse on the calling thread. */
+  /** Worker threads to use; 1 (the default) means parse on the calling thread. */
   workers?: number;
+  /** Bytes of whole frames per batch sent to a worker (default 2 MiB). Files under 2 batches are read on the calling thread. */
+  batchBytes?: number;
+}
+
+/** How mapFrames ran, for tests and benchmarks. */
+export interface MapStats {
+  mode: 'sequential' | 'parallel';
+  /** Why the sequential path was taken, when it was. */
+  reason?: string;
+  batches: number;
+  /** Most batches in flight at once. */
+  maxInFlight: number;
+}
+
+/** Statistics of the last mapFrames call (in this thread). */
+export let lastMapStats: MapStats = { mode: 'sequential', batches: 0, maxInFlight: 0 };
+
+const DEFAULT_BATCH = 2 << 20;
+const TS_FILE = /\.[mc]?tsx?$/;
+
+type JobFn<R> = (frame: Frame, index: number, options: unknown) => R | Promise<R>;
+
+/** Apply a job to every frame of an extended XYZ file, returning results in file order. */
+export async function mapFrames<R>(path: string, job: FrameJob, opts: MapOptions = {}): Promise<R[]> {
+  const workers = Math.min(64, Math.max(1, Math.floor(opts.workers ?? 1)));
+  const batchBytes = Math.max(1, Math.floor(opts.batchBytes ?? DEFAULT_BATCH));
+  if (workers <= 1) return sequential(path, job, 'workers <= 1');
+  const { size } = await stat(path);
+  if (size < 2 * batchBytes) return sequential(path, job, `file smaller than 2 batches (${size} bytes)`);
+  const launch = workerLaunch(job);
+  if (launch === null) return sequential(path, job, 'TypeScript sources and no tsx loader for worker threads');
+  // Fail early, on this thread, when the job's function does not exist.
+  await loadFn<R>(job);
+  return parallel<R>(path, job, workers, batchBytes, launch);
+}
+
+async function loadFn<R>(job: FrameJob): Promise<JobFn<R>> {
+  const mod = (await import(job.module)) as Record<string, unknown>;
+  const fn = mod[job.fn];
+  if (typeof fn !== 'function') throw new Error(`${job.module} does not export a function '${job.fn}'`);
+  return fn as JobFn<R>;
+}
+
+async function sequential<R>(path: string, job: FrameJob, reason: string): Promise<R[]> {
+  const fn = await loadFn<R>(job);
+  const out: R[] = [];
+  let index = 0;
+  for await (const frame of readFrames(path, { columns: job.columns })) out.push(await fn(frame, index++, job.options));
+  lastMapStats = { mode: 'sequential', reason, batches: 0, maxInFlight: 0 };
+  return out;
+}
+
+interface Launch {
+  /** Worker entry: a file URL, or bootstrap code (eval) that registers tsx and imports the entry. */
+  entry: URL | string;
+  eval: boolean;
+  /** Extra workerData for the bootstrap. */
+  boot?: { tsxApi: string; entry: string };
 }
 
 /**
- * Apply a job to every frame of an extended XYZ file, returning results in file order.
- * (Sequential reference version; may be replaced by a worker-thread version with the same contract.)
+ * Bootstrap for workers that must load TypeScript: on Node 20, tsx's `--import` hooks are not applied
+ * inside worker threads, so the worker registers tsx's ESM hooks itself and then imports the entry.
  */
-export async function mapFrames<R>(path: string, job: FrameJob, _opts: MapOptions = {}): Promise<R[]> {
-  const mod = (await import(job.module)) as Record<string, unknown>;
-  const fn = mod[job.fn] as (frame: Frame, index: number, options: unknown) => R;
-  if (typeof fn !== 'function') throw new Error(`${job.module} does not export a function '${job.fn}'`);
+const BOOT = `
+const { workerData } = require('node:worker_threads');
+(async () => {
+  const { register } = await import(workerData.__boot.tsxApi);
+  register();
+  await import(workerData.__boot.entry);
+})().catch((err) => { setImmediate(() => { throw err; }); });
+`;
+
+/** Worker entry and loader; null when TypeScript is involved and no tsx loader can be found. */
+function workerLaunch(job: FrameJob): Launch | null {
+  const here = import.meta.url;
+  const fromTs = TS_FILE.test(new URL(here).pathname);
+  const url = new URL(fromTs ? './map-worker.ts' : './map-worker.js', here);
+  const jobTs = TS_FILE.test(safePath(job.module));
+  if (!fromTs && !jobTs) return { entry: url, eval: false };
+  const tsxApi = tsxEsmApi(here);
+  if (tsxApi === null) return null;
+  return { entry: BOOT, eval: true, boot: { tsxApi, entry: url.href } };
+}
+
+/** File URL of tsx's ESM API (package export "./esm/api", import condition), or null. */
+function tsxEsmApi(from: string): string | null {
+  try {
+    const require = createRequire(from);
+    const pkgPath = require.resolve('tsx/package.json');
+    const pkg = JSON.parse(readFileSync(pkgPath, 'utf8')) as { exports?: Record<string, unknown> };
+    const exp = pkg.exports?.['./esm/api'] as { import?: { default?: string } | string } | undefined;
+    const rel = typeof exp?.import === 'string' ? exp.import : exp?.import?.default;
+    if (!rel) return null;
+    return pathToFileURL(join(dirname(pkgPath), rel)).href;
+  } catch {
+    return null;
+  }
+}
+
+function safePath(u: string): string {
+  try {
+    return new URL(u).pathname;
+  } catch {
+    return u;
+  }
+}
+
+interface Slot {
+  worker: Worker;
+  outstanding: number;
+}
+
+async function parallel<R>(path: string, job: FrameJob, nWorkers: number, batchBytes: number, launch: Launch): Promise<R[]> {
+  const source = await openSource(path);
+  const scanner = new FrameScanner(source, path);
+  const maxPerWorker = 2;
+  const slots: Slot[] = [];
+  const done = new Map<number, ReplyMessage>();
+  const pool: ArrayBuffer[] = [];
   const out: R[] = [];
-  let index = 0;
-  for await (const frame of readFrames(path, { columns: job.columns })) out.push(fn(frame, index++, job.options));
-  return out;
+  let flushed = 0;
+  let nextId = 0;
+  let inFlight = 0;
+  let maxInFlight = 0;
+  let failedAt = Infinity; // smallest batch id that failed
+  let fatal: Error | null = null; // a worker that died
+  let wake: (() => void) | null = null;
+  const notify = () => {
+    const w = wake;
+    wake = null;
+    w?.();
+  };
+
+  for (let k = 0; k < nWorkers; k++) {
+    const workerData = { file: path, job, __boot: launch.boot };
+    const worker = launch.eval
+      ? new Worker(launch.entry as string, { eval: true, workerData, execArgv: [] })
+      : new Worker(launch.entry, { workerData });
+    const slot: Slot = { worker, outstanding: 0 };
+    worker.on('message', (msg: ReplyMessage) => {
+      slot.outstanding--;
+      inFlight--;
+      if (msg.buf !== undefined) pool.push(msg.buf);
+      done.set(msg.id, msg);
+      if ('error' in msg && msg.id < failedAt) failedAt = msg.id;
+      notify();
+    });
+    worker.on('error', (err) => {
+      fatal ??= err;
+      notify();
+    });
+    worker.on('exit', (code) => {
+      if (code !== 0) fatal ??= new Error(`mapFrames worker exited with code ${code}`);
+      notify();
+    });
+    slots.push(slot);
+  }
+
+  const waitForProgress = () => new Promise<void>((resolve) => (wake = resolve));
+
+  const flush = () => {
+    for (;;) {
+      const msg = done.get(flushed);
+      if (msg === undefined || 'error' in msg) return;
+      done.delete(flushed);
+      for (const r of msg.results) out.push(r as R);
+      flushed++;
+    }
+  };
+
+  const dispatch = async (batch: FrameSpan[]) => {
+    const base = batch[0].start;
+    const end = batch[batch.length - 1].end;
+    // Batch buffers come back from the workers and are reused: fresh large buffers cost page faults.
+    let ab = pool.pop();
+    while (ab !== undefined && ab.byteLength < end - base) ab = pool.pop();
+    ab ??= new ArrayBuffer(Math.max(end - base, 2 * batchBytes));
+    const bytes = new Uint8Array(ab, 0, end - base);
+    bytes.set(scanner.buf.subarray(base, end));
+    const spans = new Float64Array(batch.length * SPAN_FIELDS);
+    batch.forEach((s, k) => {
+      spans.set([s.index, s.line, s.natoms, s.start - base, s.commentStart - base, s.commentEnd - base, s.atomsStart - base, s.end - base], k * SPAN_FIELDS);
+    });
+    const open = scanner.lastLineOpen;
+    const msg: BatchMessage = { id: nextId++, buf: ab, length: end - base, spans, lastLineOpen: open >= base && open < end ? open - base : -1 };
+    for (;;) {
+      if (fatal) throw fatal;
+      let best: Slot | null = null;
+      for (const s of slots) if (s.outstanding < maxPerWorker && (best === null || s.outstanding < best.outstanding)) best = s;
+      if (best !== null) {
+        best.outstanding++;
+        inFlight++;
+        maxInFlight = Math.max(maxInFlight, inFlight);
+        best.worker.postMessage(msg, [msg.buf, spans.buffer]);
+        flush();
+        return;
+      }
+      await waitForProgress();
+      flush();
+    }
+  };
+
+  let scanError: unknown = null;
+  try {
+    let batch: FrameSpan[] = [];
+    for (;;) {
+      if (failedAt !== Infinity || fatal) break;
+      let span: FrameSpan | null | typeof END;
+      try {
+        span = scanner.take();
+        if (span === null) {
+          if (batch.length > 0) await dispatch(batch);
+          batch = [];
+          await scanner.fill();
+          continue;
+        }
+      } catch (err) {
+        scanError = err;
+        break;
+      }
+      if (span === END) break;
+      batch.push(span);
+      if (span.end - batch[0].start >= batchBytes) {
+        await dispatch(batch);
+        batch = [];
+      }
+    }
+    if (batch.length > 0 && failedAt === Infinity && !fatal) await dispatch(batch);
+    while (inFlight > 0 && !fatal) {
+      await waitForProgress();
+      flush();
+    }
+    if (fatal) throw fatal;
+    flush();
+    const failed = done.get(flushed);
+    if (failed !== undefined && 'error' in failed) throw deserializeError(failed.error);
+    if (scanError !== null) throw scanError;
+    lastMapStats = { mode: 'parallel', batches: nextId, maxInFlight };
+    return out;
+  } finally {
+    await Promise.all(slots.map((s) => s.worker.terminate()));
+    await source.close();
+  }
 }

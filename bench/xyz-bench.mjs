@@ -1,0 +1,132 @@
+#!/usr/bin/env node
+/**
+ * Extended XYZ reader benchmark: throughput against `wc -l` on the same file in the same run, and peak memory.
+ *
+ *   npx tsc -p tsconfig.build.json && node bench/xyz-bench.mjs [--mb 320] [--repeat 3] [--keep]
+ *
+ * Generates bench/out/xyz-trajectory.xyz (bench/gen-trajectory.mjs: 1000-atom periodic frames with forces and
+ * four committee force arrays) and a smaller one (1/4 of the size) to show that peak memory does not grow with
+ * the file; times `wc -l`, readFrames (positions only; committee columns; all columns), mapFrames on 1 and
+ * 2 workers, and, when the built CLI has them, `ratchet check contacts` and `ratchet check committee`.
+ * Each measurement runs in its own process (peak RSS from process.resourceUsage(), or /usr/bin/time for the
+ * CLI); the median of --repeat runs is reported. Writes bench/out/xyz-bench.json and prints a markdown table.
+ * The big files are deleted at the end unless --keep.
+ */
+import { execFileSync, spawnSync } from 'node:child_process';
+import { existsSync, mkdirSync, rmSync, statSync, writeFileSync } from 'node:fs';
+import { cpus, loadavg } from 'node:os';
+import { fileURLToPath } from 'node:url';
+
+const root = fileURLToPath(new URL('..', import.meta.url));
+const out = `${root}bench/out`;
+const args = process.argv.slice(2);
+const opt = (name, dflt) => {
+  const i = args.indexOf(`--${name}`);
+  return i >= 0 ? Number(args[i + 1]) : dflt;
+};
+const mb = opt('mb', 320);
+const repeat = opt('repeat', 3);
+const keep = args.includes('--keep');
+if (!existsSync(`${root}dist/atoms/xyz/map.js`)) {
+  console.error('build first: npx tsc -p tsconfig.build.json');
+  process.exit(2);
+}
+mkdirSync(out, { recursive: true });
+
+const big = `${out}/xyz-trajectory.xyz`;
+const small = `${out}/xyz-trajectory-quarter.xyz`;
+for (const [path, size] of [[big, mb], [small, mb / 4]]) {
+  if (!existsSync(path) || statSync(path).size < size * 1e6 * 0.99) {
+    console.error(`generating ${path} (${size} MB)`);
+    execFileSync(process.execPath, [`${root}bench/gen-trajectory.mjs`, path, '--mb', String(size)], { stdio: ['ignore', 'ignore', 'inherit'] });
+  }
+}
+
+const median = (xs) => [...xs].sort((a, b) => a - b)[Math.floor(xs.length / 2)];
+const hasTime = existsSync('/usr/bin/time');
+
+/** Run a command `repeat` times; wall time measured here, peak RSS from /usr/bin/time when present. */
+function timeCommand(cmd, argv) {
+  const walls = [];
+  const rss = [];
+  let stdout = '';
+  for (let k = 0; k < repeat; k++) {
+    const t0 = performance.now();
+    const r = hasTime
+      ? spawnSync('/usr/bin/time', ['-f', '%M', cmd, ...argv], { encoding: 'utf8', maxBuffer: 1 << 28 })
+      : spawnSync(cmd, argv, { encoding: 'utf8', maxBuffer: 1 << 28 });
+    walls.push((performance.now() - t0) / 1000);
+    if (hasTime) rss.push(Number(r.stderr.trim().split('\n').pop()) / 1024);
+    stdout = r.stdout;
+    if (r.status !== 0 && r.status !== 1) throw new Error(`${cmd} ${argv.join(' ')} failed (${r.status}): ${r.stderr}`);
+  }
+  return { wall_s: median(walls), walls, max_rss_mb: rss.length ? Math.max(...rss) : null, stdout };
+}
+
+function child(kind, file) {
+  const runs = [];
+  for (let k = 0; k < repeat; k++) {
+    const r = spawnSync(process.execPath, [`${root}bench/xyz-child.mjs`, kind, file], { encoding: 'utf8' });
+    if (r.status !== 0) throw new Error(`${kind}: ${r.stderr}`);
+    runs.push(JSON.parse(r.stdout));
+  }
+  const wall = median(runs.map((r) => r.wall_s));
+  return { ...runs.find((r) => r.wall_s === wall), walls: runs.map((r) => r.wall_s), max_rss_mb: Math.max(...runs.map((r) => r.max_rss_mb)) };
+}
+
+const bytes = statSync(big).size;
+const MB = bytes / 1e6;
+execFileSync('cat', [big], { stdio: ['ignore', 'ignore', 'inherit'], maxBuffer: 0 }); // warm the page cache
+const wc = timeCommand('wc', ['-l', big]);
+const wcRate = MB / wc.wall_s;
+const rows = [{ what: '`wc -l`', command: `wc -l ${big}`, ...wc, rate: wcRate }];
+
+const cases = [
+  ['read-pos', 'readFrames, positions only (columns: [])'],
+  ['read-committee', 'readFrames, forces_0..3'],
+  ['read-all', 'readFrames, all columns'],
+  ['map1-committee', 'mapFrames, 1 thread, forces_0..3'],
+  ['map2-pos', 'mapFrames, 2 workers, positions only'],
+  ['map2-committee', 'mapFrames, 2 workers, forces_0..3'],
+];
+for (const [kind, what] of cases) {
+  const r = child(kind, big);
+  rows.push({ what, command: `node bench/xyz-child.mjs ${kind} ${big}`, ...r, rate: MB / r.wall_s });
+}
+const smallMap = child('map2-committee', small);
+
+const cli = `${root}dist/cli/index.js`;
+const help = existsSync(cli) ? spawnSync(process.execPath, [cli, 'check', '--help'], { encoding: 'utf8' }).stdout : '';
+for (const gate of ['contacts', 'committee']) {
+  if (!new RegExp(`\\b${gate}\\b`).test(help)) {
+    rows.push({ what: `ratchet check ${gate}`, command: '(not available in dist/cli)', wall_s: null, rate: null });
+    continue;
+  }
+  const r = timeCommand(process.execPath, [cli, 'check', gate, big, '--json']);
+  rows.push({ what: `\`ratchet check ${gate}\``, command: `node dist/cli/index.js check ${gate} ${big} --json`, wall_s: r.wall_s, walls: r.walls, max_rss_mb: r.max_rss_mb, rate: MB / r.wall_s, verdict: (() => { try { return JSON.parse(r.stdout).verdict; } catch { return undefined; } })() });
+}
+
+const result = {
+  date: new Date().toISOString(),
+  node: process.version,
+  cpus: cpus().length,
+  cpu: cpus()[0]?.model,
+  loadavg_at_end: loadavg(),
+  file: big,
+  bytes,
+  frames: rows.find((r) => r.frames)?.frames,
+  repeat,
+  rows: rows.map(({ stdout, ...r }) => ({ ...r, ratio_to_wc: r.rate ? r.rate / wcRate : null })),
+  memory_scaling: { quarter_file_bytes: statSync(small).size, map2_committee_max_rss_mb: smallMap.max_rss_mb, full_file_max_rss_mb: rows.find((r) => r.case === 'map2-committee')?.max_rss_mb },
+};
+writeFileSync(`${out}/xyz-bench.json`, JSON.stringify(result, null, 2));
+const f = (x, d = 2) => (x === null || x === undefined ? '—' : x.toFixed(d));
+console.log(`file: ${big} (${f(MB, 1)} MB, ${result.frames} frames), node ${process.version}, ${result.cpus} cpus, load ${loadavg().map((x) => x.toFixed(1)).join(' ')}`);
+console.log('| what | wall s (median) | MB/s | ratio to wc -l | peak RSS MB |');
+console.log('|---|---|---|---|---|');
+for (const r of result.rows) console.log(`| ${r.what} | ${f(r.wall_s, 3)} | ${f(r.rate, 0)} | ${r.ratio_to_wc === null ? '—' : `${(100 * r.ratio_to_wc).toFixed(1)}%`} | ${f(r.max_rss_mb, 0)} |`);
+console.log(`peak RSS of mapFrames (2 workers) on a quarter of the file: ${f(smallMap.max_rss_mb, 0)} MB (full file: ${f(result.memory_scaling.full_file_max_rss_mb, 0)} MB)`);
+if (!keep) {
+  rmSync(big, { force: true });
+  rmSync(small, { force: true });
+}

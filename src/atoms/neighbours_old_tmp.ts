@@ -1,0 +1,657 @@
+/**
+ * Neighbour search: every pair of atoms closer than a cutoff, for any cell shape and periodicity.
+ *
+ * Method (cell list / "binning"):
+ *  1. Positions are expressed in fractional coordinates of the effective cell (cell.ts: non-periodic axes get
+ *     unit vectors orthogonal to the periodic ones; a non-periodic system uses Cartesian axes) and wrapped
+ *     into [0, 1) along periodic axes.
+ *  2. Each axis is cut into n_k slabs ("bins") whose perpendicular thickness h_k is at least cutoff/2 (periodic
+ *     axes span one cell, non-periodic axes the bounding box of the atoms). Because the bins are parallelepipeds
+ *     measured by perpendicular widths, the search is exact for any cell shape, however skewed.
+ *  3. Periodic images of atoms that lie within reach of the cell ("ghosts") are materialised into padding bins
+ *     around the interior; when the cutoff exceeds the cell width, several layers of images are made.
+ *  4. For every interior bin, atoms are compared with atoms in the same bin (each pair once) and in a half stencil
+ *     of neighbouring bins: bin offsets O that are lexicographically positive and whose parallelepipeds can hold
+ *     two points closer than the cutoff (the exact box-to-box distance, so skewed cells do not waste work).
+ *     A pair (i, j, shift S) seen from i's bin at offset O is seen from j's bin at offset -O, so the half stencil
+ *     visits every pair, including every periodic image pair, exactly once.
+ * Cost is linear in the number of atoms at fixed density and cutoff; storage is a handful of typed arrays;
+ * no allocation per pair.
+ */
+import type { Pbc } from './frame.js';
+import { CellError, cellInverse, effectiveCell, isPeriodic, MinimumImager, perpendicularWidths } from './cell.js';
+
+/** What the neighbour search needs from a frame (a Frame is one). */
+export interface AtomsGeometry {
+  /** 3N Cartesian positions, Å. */
+  positions: Float64Array;
+  /** Rows a, b, c (Å) or null. */
+  cell: Float64Array | null;
+  pbc: Pbc;
+}
+
+/**
+ * Called once per pair within the cutoff: i <= j (i === j for an atom and one of its own periodic images),
+ * d the distance, (dx, dy, dz) = r_j + lattice shift - r_i.
+ */
+export type PairVisitor = (i: number, j: number, d: number, dx: number, dy: number, dz: number) => void;
+
+export interface NeighbourOptions {
+  /** Bin thickness as a fraction of the cutoff (default 0.5). Smaller bins test fewer far pairs but cost more bookkeeping. */
+  binFraction?: number;
+}
+
+/** Thrown for unusable input (non-finite positions, bad cutoff, missing cell for pbc). */
+export class NeighbourError extends Error {
+  constructor(message: string) {
+    super(message);
+    this.name = 'NeighbourError';
+  }
+}
+
+/** The binned and image-extended system, ready for pair loops. */
+interface Grid {
+  n: number;
+  /** Sorted (by extended bin) Cartesian coordinates of real atoms and ghosts. */
+  x: Float64Array;
+  y: Float64Array;
+  z: Float64Array;
+  /** Original atom index of each sorted entry. */
+  atom: Int32Array;
+  /** binStart[b] .. binStart[b+1] are the sorted entries in extended bin b. */
+  binStart: Int32Array;
+  /** Interior bin counts and extended dimensions. */
+  nb: [number, number, number];
+  g: [number, number, number];
+  lo: [number, number, number];
+  /** Linear offsets of the half stencil (no zero offset). */
+  stencil: Int32Array;
+}
+
+function checkInput(system: AtomsGeometry, cutoff: number): number {
+  if (!(cutoff > 0) || !Number.isFinite(cutoff)) {
+    throw new NeighbourError(`cutoff must be a positive finite number of Å, got ${cutoff}`);
+  }
+  const pos = system.positions;
+  if (pos.length % 3 !== 0) throw new NeighbourError(`positions must hold 3 numbers per atom, found ${pos.length} numbers`);
+  for (let k = 0; k < pos.length; k++) {
+    if (!Number.isFinite(pos[k])) {
+      throw new NeighbourError(`position of atom ${Math.floor(k / 3)} is not finite (${'xyz'[k % 3]} = ${pos[k]})`);
+    }
+  }
+  return pos.length / 3;
+}
+
+/** Largest number of bins (extended grid) allowed per atom before bins are coarsened (dilute systems). */
+const MAX_BINS_PER_ATOM = 4;
+const MIN_BIN_CAP = 4096;
+
+function buildGrid(system: AtomsGeometry, cutoff: number, binFraction: number): Grid {
+  const n = checkInput(system, cutoff);
+  const pbc = system.pbc;
+  let h: Float64Array;
+  try {
+    h = effectiveCell(system.cell, pbc);
+  } catch (e) {
+    if (e instanceof CellError) throw new NeighbourError(e.message);
+    throw e;
+  }
+  const per: [boolean, boolean, boolean] = isPeriodic(system.cell, pbc) ? [pbc[0], pbc[1], pbc[2]] : [false, false, false];
+  const inv = cellInverse(h);
+  const unitWidth = perpendicularWidths(h);
+  const pos = system.positions;
+
+  // Fractional coordinates, wrapped along periodic axes; wrapped Cartesian positions.
+  const s = new Float64Array(3 * n);
+  const p = new Float64Array(3 * n);
+  const smin = [Infinity, Infinity, Infinity];
+  const smax = [-Infinity, -Infinity, -Infinity];
+  for (let a = 0; a < n; a++) {
+    const x = pos[3 * a], y = pos[3 * a + 1], z = pos[3 * a + 2];
+    let s0 = x * inv[0] + y * inv[3] + z * inv[6];
+    let s1 = x * inv[1] + y * inv[4] + z * inv[7];
+    let s2 = x * inv[2] + y * inv[5] + z * inv[8];
+    let w0 = 0, w1 = 0, w2 = 0;
+    if (per[0]) { w0 = Math.floor(s0); s0 -= w0; }
+    if (per[1]) { w1 = Math.floor(s1); s1 -= w1; }
+    if (per[2]) { w2 = Math.floor(s2); s2 -= w2; }
+    s[3 * a] = s0; s[3 * a + 1] = s1; s[3 * a + 2] = s2;
+    p[3 * a] = x - (w0 * h[0] + w1 * h[3] + w2 * h[6]);
+    p[3 * a + 1] = y - (w0 * h[1] + w1 * h[4] + w2 * h[7]);
+    p[3 * a + 2] = z - (w0 * h[2] + w1 * h[5] + w2 * h[8]);
+    if (s0 < smin[0]) smin[0] = s0;
+    if (s0 > smax[0]) smax[0] = s0;
+    if (s1 < smin[1]) smin[1] = s1;
+    if (s1 > smax[1]) smax[1] = s1;
+    if (s2 < smin[2]) smin[2] = s2;
+    if (s2 > smax[2]) smax[2] = s2;
+  }
+
+  // Extent of each axis in fractional units and in perpendicular Å.
+  const binTarget = cutoff * binFraction;
+  const origin = [0, 0, 0];
+  const range = [1, 1, 1];
+  const thick = [0, 0, 0];
+  for (let k = 0; k < 3; k++) {
+    if (per[k]) {
+      thick[k] = unitWidth[k];
+    } else {
+      origin[k] = n > 0 ? smin[k] : 0;
+      const ext = n > 0 ? smax[k] - smin[k] : 0;
+      // Give a flat (or empty) extent one bin of the target thickness.
+      range[k] = Math.max(ext, binTarget / unitWidth[k]);
+      thick[k] = range[k] * unitWidth[k];
+    }
+  }
+  const nb: [number, number, number] = [0, 0, 0];
+  for (let k = 0; k < 3; k++) nb[k] = Math.max(1, Math.floor(thick[k] / binTarget));
+  const m: [number, number, number] = [0, 0, 0];
+  const lo: [number, number, number] = [0, 0, 0];
+  const hi: [number, number, number] = [0, 0, 0];
+  const g: [number, number, number] = [0, 0, 0];
+  const maxBins = Math.max(MIN_BIN_CAP, MAX_BINS_PER_ATOM * n);
+  for (;;) {
+    for (let k = 0; k < 3; k++) {
+      const hk = thick[k] / nb[k];
+      let mk = Math.ceil((cutoff * (1 + 1e-9)) / hk);
+      if (!per[k]) mk = Math.min(mk, nb[k] - 1);
+      m[k] = mk;
+    }
+    // Half stencil: offsets lexicographically > 0, so axis 0 only needs padding on the high side.
+    lo[0] = 0; hi[0] = m[0];
+    lo[1] = m[1]; hi[1] = m[1];
+    lo[2] = m[2]; hi[2] = m[2];
+    for (let k = 0; k < 3; k++) g[k] = nb[k] + lo[k] + hi[k];
+    const total = g[0] * g[1] * g[2];
+    if (total <= maxBins || (nb[0] === 1 && nb[1] === 1 && nb[2] === 1)) break;
+    // Dilute system: coarsen the bins (larger bins stay exact, only slower per pair).
+    const f = Math.cbrt(total / maxBins) * 1.05;
+    for (let k = 0; k < 3; k++) nb[k] = Math.max(1, Math.floor(nb[k] / f));
+  }
+
+  // Bin edge vectors (Cartesian) for the exact stencil pruning.
+  const edges = new Float64Array(9);
+  for (let k = 0; k < 3; k++) {
+    const f = range[k] / nb[k];
+    edges[3 * k] = h[3 * k] * f;
+    edges[3 * k + 1] = h[3 * k + 1] * f;
+    edges[3 * k + 2] = h[3 * k + 2] * f;
+  }
+  const stencil = halfStencil(edges, m, g, cutoff * (1 + 1e-9) + 1e-12);
+
+  // Interior bin of each real atom.
+  const bin = new Int32Array(3 * n);
+  for (let a = 0; a < n; a++) {
+    for (let k = 0; k < 3; k++) {
+      let b = Math.floor(((s[3 * a + k] - origin[k]) / range[k]) * nb[k]);
+      if (b < 0) b = 0;
+      else if (b >= nb[k]) b = nb[k] - 1;
+      bin[3 * a + k] = b;
+    }
+  }
+
+  // Image shifts that land an atom of interior bin b into the extended grid, per axis and bin index.
+  const shiftLists: Int32Array[][] = [];
+  for (let k = 0; k < 3; k++) {
+    const lists: Int32Array[] = [];
+    for (let b = 0; b < nb[k]; b++) {
+      const out: number[] = [];
+      if (per[k]) {
+        const q = Math.ceil(Math.max(lo[k], hi[k]) / nb[k]) + 1;
+        for (let S = -q; S <= q; S++) {
+          const B = b + S * nb[k];
+          if (B >= -lo[k] && B < nb[k] + hi[k]) out.push(S);
+        }
+      } else {
+        out.push(0);
+      }
+      lists.push(Int32Array.from(out));
+    }
+    shiftLists.push(lists);
+  }
+
+  // Counting sort of real atoms and ghosts by extended bin.
+  const nbins = g[0] * g[1] * g[2];
+  const binStart = new Int32Array(nbins + 1);
+  const g12 = g[1] * g[2];
+  let total = 0;
+  for (let a = 0; a < n; a++) {
+    const b0 = bin[3 * a], b1 = bin[3 * a + 1], b2 = bin[3 * a + 2];
+    const L0 = shiftLists[0][b0], L1 = shiftLists[1][b1], L2 = shiftLists[2][b2];
+    for (let u = 0; u < L0.length; u++) {
+      const e0 = (b0 + L0[u] * nb[0] + lo[0]) * g12;
+      for (let v = 0; v < L1.length; v++) {
+        const e1 = e0 + (b1 + L1[v] * nb[1] + lo[1]) * g[2];
+        for (let w = 0; w < L2.length; w++) {
+          binStart[e1 + b2 + L2[w] * nb[2] + lo[2] + 1]++;
+          total++;
+        }
+      }
+    }
+  }
+  for (let b = 0; b < nbins; b++) binStart[b + 1] += binStart[b];
+  const fill = binStart.slice(0, nbins);
+  const x = new Float64Array(total), y = new Float64Array(total), z = new Float64Array(total);
+  const atom = new Int32Array(total);
+  for (let a = 0; a < n; a++) {
+    const b0 = bin[3 * a], b1 = bin[3 * a + 1], b2 = bin[3 * a + 2];
+    const px = p[3 * a], py = p[3 * a + 1], pz = p[3 * a + 2];
+    const L0 = shiftLists[0][b0], L1 = shiftLists[1][b1], L2 = shiftLists[2][b2];
+    for (let u = 0; u < L0.length; u++) {
+      const S0 = L0[u];
+      const e0 = (b0 + S0 * nb[0] + lo[0]) * g12;
+      for (let v = 0; v < L1.length; v++) {
+        const S1 = L1[v];
+        const e1 = e0 + (b1 + S1 * nb[1] + lo[1]) * g[2];
+        for (let w = 0; w < L2.length; w++) {
+          const S2 = L2[w];
+          const slot = fill[e1 + b2 + S2 * nb[2] + lo[2]]++;
+          x[slot] = px + S0 * h[0] + S1 * h[3] + S2 * h[6];
+          y[slot] = py + S0 * h[1] + S1 * h[4] + S2 * h[7];
+          z[slot] = pz + S0 * h[2] + S1 * h[5] + S2 * h[8];
+          atom[slot] = a;
+        }
+      }
+    }
+  }
+  return { n, x, y, z, atom, binStart, nb, g, lo, stencil };
+}
+
+/**
+ * Linear offsets of the bin offsets O (|O_k| <= m_k, lexicographically positive) whose bins can hold two points
+ * closer than `reach`: the distance between bin parallelepipeds at offset O is min |sum_k u_k e_k| over
+ * u_k in [O_k - 1, O_k + 1], a convex quadratic over a box, minimised exactly by enumerating its faces.
+ */
+function halfStencil(edges: Float64Array, m: [number, number, number], g: [number, number, number], reach: number): Int32Array {
+  const heights = perpendicularWidths(edges);
+  const G = new Float64Array(9);
+  for (let p = 0; p < 3; p++) {
+    for (let q = 0; q < 3; q++) {
+      G[3 * p + q] = edges[3 * p] * edges[3 * q] + edges[3 * p + 1] * edges[3 * q + 1] + edges[3 * p + 2] * edges[3 * q + 2];
+    }
+  }
+  const reach2 = reach * reach;
+  const out: number[] = [];
+  for (let o0 = 0; o0 <= m[0]; o0++) {
+    for (let o1 = o0 === 0 ? 0 : -m[1]; o1 <= m[1]; o1++) {
+      for (let o2 = o0 === 0 && o1 === 0 ? 1 : -m[2]; o2 <= m[2]; o2++) {
+        // cheap decisions first: the box contains u = O (keep if that is within reach); perpendicular separation
+        // of the two bins along any axis is a lower bound (drop if beyond reach); otherwise solve exactly
+        const cx = o0 * edges[0] + o1 * edges[3] + o2 * edges[6];
+        const cy = o0 * edges[1] + o1 * edges[4] + o2 * edges[7];
+        const cz = o0 * edges[2] + o1 * edges[5] + o2 * edges[8];
+        let keep = cx * cx + cy * cy + cz * cz < reach2;
+        if (!keep) {
+          const sep = Math.max((Math.abs(o0) - 1) * heights[0], (Math.abs(o1) - 1) * heights[1], (Math.abs(o2) - 1) * heights[2]);
+          keep = !(sep * sep >= reach2) && boxMinNorm2(G, [o0, o1, o2]) < reach2;
+        }
+        if (keep) out.push((o0 * g[1] + o1) * g[2] + o2);
+      }
+    }
+  }
+  return Int32Array.from(out);
+}
+
+/**
+ * min over u in prod_k [O_k - 1, O_k + 1] of u^T G u (G positive definite 3x3, row-major): the squared distance between
+ * two bin parallelepipeds whose edge vectors have Gram matrix G, at bin offset O. Exact: the minimiser of a convex
+ * quadratic over a box is the unconstrained minimiser on one of its 27 faces (interior, facets, edges, corners),
+ * so every face's stationary point that lies in the box is a candidate.
+ */
+export function boxMinNorm2(G: ArrayLike<number>, O: readonly [number, number, number] | readonly number[]): number {
+  const g00 = G[0], g01 = G[1], g02 = G[2], g11 = G[4], g12 = G[5], g22 = G[8];
+  const o0 = O[0], o1 = O[1], o2 = O[2];
+  const tol = 1e-12;
+  let best = Infinity;
+  for (let code = 0; code < 27; code++) {
+    const s0 = code % 3, s1 = ((code / 3) | 0) % 3, s2 = (code / 9) | 0; // 0 lower, 1 upper, 2 free
+    let u0 = s0 === 0 ? o0 - 1 : o0 + 1;
+    let u1 = s1 === 0 ? o1 - 1 : o1 + 1;
+    let u2 = s2 === 0 ? o2 - 1 : o2 + 1;
+    const nfree = (s0 === 2 ? 1 : 0) + (s1 === 2 ? 1 : 0) + (s2 === 2 ? 1 : 0);
+    if (nfree === 3) {
+      u0 = 0; u1 = 0; u2 = 0;
+      if (Math.abs(o0) > 1 || Math.abs(o1) > 1 || Math.abs(o2) > 1) continue;
+    } else if (nfree === 1) {
+      if (s0 === 2) u0 = -(g01 * u1 + g02 * u2) / g00;
+      else if (s1 === 2) u1 = -(g01 * u0 + g12 * u2) / g11;
+      else u2 = -(g02 * u0 + g12 * u1) / g22;
+    } else if (nfree === 2) {
+      if (s0 !== 2) {
+        // free u1, u2
+        const r1 = -g01 * u0, r2 = -g02 * u0, det = g11 * g22 - g12 * g12;
+        u1 = (g22 * r1 - g12 * r2) / det;
+        u2 = (g11 * r2 - g12 * r1) / det;
+      } else if (s1 !== 2) {
+        const r0 = -g01 * u1, r2 = -g12 * u1, det = g00 * g22 - g02 * g02;
+        u0 = (g22 * r0 - g02 * r2) / det;
+        u2 = (g00 * r2 - g02 * r0) / det;
+      } else {
+        const r0 = -g02 * u2, r1 = -g12 * u2, det = g00 * g11 - g01 * g01;
+        u0 = (g11 * r0 - g01 * r1) / det;
+        u1 = (g00 * r1 - g01 * r0) / det;
+      }
+    }
+    if (u0 < o0 - 1 - tol || u0 > o0 + 1 + tol || u1 < o1 - 1 - tol || u1 > o1 + 1 + tol || u2 < o2 - 1 - tol || u2 > o2 + 1 + tol) continue;
+    const v = g00 * u0 * u0 + g11 * u1 * u1 + g22 * u2 * u2 + 2 * (g01 * u0 * u1 + g02 * u0 * u2 + g12 * u1 * u2);
+    if (v < best) best = v;
+  }
+  return Math.max(0, best);
+}
+
+/**
+ * Visit every pair of atoms closer than `cutoff` (Å; strictly less) exactly once: i <= j; i === j for an atom and a
+ * periodic image of itself; pairs with different lattice shifts are visited separately; (dx, dy, dz) = r_j + shift - r_i
+ * with the original (unwrapped) positions. Works for any triclinic cell, mixed periodicity and non-periodic systems,
+ * and for cutoffs larger than the cell. Throws NeighbourError for non-finite positions, a bad cutoff, or a pbc the cell
+ * cannot support.
+ */
+export function forEachPair(system: AtomsGeometry, cutoff: number, visit: PairVisitor, options: NeighbourOptions = {}): void {
+  const binFraction = options.binFraction ?? 0.5;
+  if (!(binFraction > 0) || !Number.isFinite(binFraction)) {
+    throw new NeighbourError(`binFraction must be a positive finite number, got ${binFraction}`);
+  }
+  const grid = buildGrid(system, cutoff, binFraction);
+  const { x, y, z, atom, binStart, nb, g, lo, stencil } = grid;
+  const c2 = cutoff * cutoff;
+  const ns = stencil.length;
+  for (let b0 = 0; b0 < nb[0]; b0++) {
+    for (let b1 = 0; b1 < nb[1]; b1++) {
+      const rowBase = ((b0 + lo[0]) * g[1] + (b1 + lo[1])) * g[2] + lo[2];
+      for (let b2 = 0; b2 < nb[2]; b2++) {
+        const bin = rowBase + b2;
+        const start = binStart[bin], end = binStart[bin + 1];
+        if (start === end) continue;
+        // pairs inside the bin
+        for (let a = start; a < end; a++) {
+          const i = atom[a];
+          const xi = x[a], yi = y[a], zi = z[a];
+          for (let b = a + 1; b < end; b++) {
+            const dx = x[b] - xi, dy = y[b] - yi, dz = z[b] - zi;
+            const d2 = dx * dx + dy * dy + dz * dz;
+            if (d2 < c2) {
+              const j = atom[b];
+              if (i <= j) visit(i, j, Math.sqrt(d2), dx, dy, dz);
+              else visit(j, i, Math.sqrt(d2), -dx, -dy, -dz);
+            }
+          }
+        }
+        // pairs with the half stencil of neighbouring bins
+        for (let t = 0; t < ns; t++) {
+          const nbin = bin + stencil[t];
+          const s0 = binStart[nbin], e = binStart[nbin + 1];
+          if (s0 === e) continue;
+          for (let a = start; a < end; a++) {
+            const xi = x[a], yi = y[a], zi = z[a];
+            for (let b = s0; b < e; b++) {
+              const dx = x[b] - xi, dy = y[b] - yi, dz = z[b] - zi;
+              const d2 = dx * dx + dy * dy + dz * dz;
+              if (d2 < c2) {
+                const i = atom[a], j = atom[b];
+                if (i <= j) visit(i, j, Math.sqrt(d2), dx, dy, dz);
+                else visit(j, i, Math.sqrt(d2), -dx, -dy, -dz);
+              }
+            }
+          }
+        }
+      }
+    }
+  }
+}
+
+/** Number of neighbours of each atom within the cutoff (each periodic image counts; an atom's own images count). */
+export function countNeighbours(system: AtomsGeometry, cutoff: number): Int32Array {
+  const n = system.positions.length / 3;
+  const count = new Int32Array(n);
+  forEachPair(system, cutoff, (i, j) => {
+    count[i]++;
+    count[j]++;
+  });
+  return count;
+}
+
+/**
+ * Full neighbour list in compressed sparse row form: the neighbours of atom i are entries offsets[i] .. offsets[i+1]-1;
+ * entry e holds the neighbour index, distance and vector (r_neighbour + shift - r_i) at vectors[3e..3e+2].
+ * Each pair appears twice (once from each side; a self-image pair appears as two entries of atom i, S and -S).
+ * Within an atom's row entries are in no particular order.
+ */
+export interface NeighbourList {
+  offsets: Int32Array;
+  neighbours: Int32Array;
+  distances: Float64Array;
+  vectors: Float64Array;
+}
+
+export function neighbourList(system: AtomsGeometry, cutoff: number): NeighbourList {
+  const n = system.positions.length / 3;
+  // Collect the half list in growable typed arrays, then scatter both directions.
+  let cap = Math.max(16, 8 * n);
+  let pi = new Int32Array(cap), pj = new Int32Array(cap);
+  let pd = new Float64Array(cap), pv = new Float64Array(3 * cap);
+  let np = 0;
+  const count = new Int32Array(n + 1);
+  forEachPair(system, cutoff, (i, j, d, dx, dy, dz) => {
+    if (np === cap) {
+      cap *= 2;
+      const ni = new Int32Array(cap); ni.set(pi); pi = ni;
+      const nj = new Int32Array(cap); nj.set(pj); pj = nj;
+      const nd = new Float64Array(cap); nd.set(pd); pd = nd;
+      const nv = new Float64Array(3 * cap); nv.set(pv); pv = nv;
+    }
+    pi[np] = i; pj[np] = j; pd[np] = d;
+    pv[3 * np] = dx; pv[3 * np + 1] = dy; pv[3 * np + 2] = dz;
+    np++;
+    count[i + 1]++;
+    count[j + 1]++;
+  });
+  for (let a = 0; a < n; a++) count[a + 1] += count[a];
+  const offsets = count;
+  const fill = offsets.slice(0, n);
+  const neighbours = new Int32Array(2 * np);
+  const distances = new Float64Array(2 * np);
+  const vectors = new Float64Array(6 * np);
+  for (let q = 0; q < np; q++) {
+    const i = pi[q], j = pj[q];
+    let e = fill[i]++;
+    neighbours[e] = j; distances[e] = pd[q];
+    vectors[3 * e] = pv[3 * q]; vectors[3 * e + 1] = pv[3 * q + 1]; vectors[3 * e + 2] = pv[3 * q + 2];
+    e = fill[j]++;
+    neighbours[e] = i; distances[e] = pd[q];
+    vectors[3 * e] = -pv[3 * q]; vectors[3 * e + 1] = -pv[3 * q + 1]; vectors[3 * e + 2] = -pv[3 * q + 2];
+  }
+  return { offsets, neighbours, distances, vectors };
+}
+
+/** The closest pair of a system: distance and atoms (i <= j; i === j when the closest is an atom's own image). */
+export interface ClosestPair {
+  /** Infinity when there is no pair at all (fewer than two atoms and no periodicity). */
+  distance: number;
+  i: number;
+  j: number;
+  /** r_j + shift - r_i. */
+  vector: [number, number, number];
+}
+
+/** Rough extent data used to pick starting cutoffs and an upper bound beyond which every pair has been seen. */
+function searchScale(system: AtomsGeometry): { start: number; bound: number; selfImage: number } {
+  const n = system.positions.length / 3;
+  const h = effectiveCell(system.cell, system.pbc);
+  const periodic = isPeriodic(system.cell, system.pbc);
+  const per = periodic ? system.pbc : ([false, false, false] as Pbc);
+  const inv = cellInverse(h);
+  const w = perpendicularWidths(h);
+  const smin = [Infinity, Infinity, Infinity], smax = [-Infinity, -Infinity, -Infinity];
+  const pos = system.positions;
+  for (let a = 0; a < n; a++) {
+    const xx = pos[3 * a], yy = pos[3 * a + 1], zz = pos[3 * a + 2];
+    for (let k = 0; k < 3; k++) {
+      let sk = xx * inv[k] + yy * inv[3 + k] + zz * inv[6 + k];
+      if (per[k]) sk -= Math.floor(sk);
+      if (sk < smin[k]) smin[k] = sk;
+      if (sk > smax[k]) smax[k] = sk;
+    }
+  }
+  let volume = 1;
+  let diag2 = 0;
+  for (let k = 0; k < 3; k++) {
+    const ext = n > 0 ? (smax[k] - smin[k]) * w[k] : 0;
+    volume *= per[k] ? w[k] : Math.max(ext, 1);
+    // Extent of the wrapped positions along axis k as a vector length (|row k| times fractional extent).
+    const len = Math.hypot(h[3 * k], h[3 * k + 1], h[3 * k + 2]);
+    diag2 += n > 0 ? ((smax[k] - smin[k]) * len) ** 2 : 0;
+  }
+  const selfImage = new MinimumImager(system.cell, system.pbc).shortestLatticeVector().distance;
+  // Two wrapped positions differ by at most sum_k extent_k |row k| <= sqrt(3 diag2); an atom's nearest own image is
+  // selfImage away. So every pair that exists has its closest image within `bound`.
+  const bound = Math.max(Math.sqrt(3 * diag2), selfImage < Infinity ? selfImage : 0) * (1 + 1e-9) + 1e-9;
+  const start = Math.max(Math.cbrt(volume / Math.max(n, 1)), 1e-6);
+  return { start, bound, selfImage };
+}
+
+/**
+ * The closest pair (exact, for any cell): including an atom and its own periodic image in small cells.
+ * Runs the neighbour search with a cutoff near the mean spacing and doubles it until a pair is found.
+ */
+export function minimumDistance(system: AtomsGeometry): ClosestPair {
+  const n = checkInput(system, 1);
+  const none: ClosestPair = { distance: Infinity, i: -1, j: -1, vector: [NaN, NaN, NaN] };
+  if (n === 0) return none;
+  const { start, bound, selfImage } = searchScale(system);
+  let cutoff = Math.min(start, selfImage * (1 + 1e-9) + 1e-12);
+  for (;;) {
+    let best = Infinity, bi = -1, bj = -1, vx = 0, vy = 0, vz = 0;
+    forEachPair(system, cutoff, (i, j, d, dx, dy, dz) => {
+      if (d < best || (d === best && (i < bi || (i === bi && j < bj)))) {
+        best = d; bi = i; bj = j; vx = dx; vy = dy; vz = dz;
+      }
+    });
+    if (bi >= 0) return { distance: best, i: bi, j: bj, vector: [vx, vy, vz] };
+    if (cutoff >= bound) return none;
+    cutoff = Math.min(cutoff * 2, Math.max(bound, cutoff));
+  }
+}
+
+/** Closest pair per group pair; distance[g*G+h] === distance[h*G+g]. Infinity where no such pair exists. */
+export interface GroupClosest {
+  groups: number;
+  distance: Float64Array;
+  i: Int32Array;
+  j: Int32Array;
+}
+
+/**
+ * The closest pair between every two groups of atoms (e.g. species), exact for any cell. `group[a]` in 0..G-1.
+ * Grows the cutoff from the mean spacing; group pairs still unresolved after a few doublings (rare species far apart)
+ * are finished by a direct minimum-image loop over their atoms when that is cheaper.
+ */
+export function minimumDistanceByGroup(system: AtomsGeometry, group: ArrayLike<number>, groupCount: number): GroupClosest {
+  const n = checkInput(system, 1);
+  if (group.length !== n) throw new NeighbourError(`group labels: expected ${n} (one per atom), found ${group.length}`);
+  const G = groupCount;
+  const size = new Float64Array(G);
+  for (let a = 0; a < n; a++) {
+    const q = group[a];
+    if (!Number.isInteger(q) || q < 0 || q >= G) throw new NeighbourError(`group label of atom ${a} is ${q}: expected an integer from 0 to ${G - 1}`);
+    size[q]++;
+  }
+  const distance = new Float64Array(G * G).fill(Infinity);
+  const bi = new Int32Array(G * G).fill(-1), bj = new Int32Array(G * G).fill(-1);
+  if (n === 0) return { groups: G, distance, i: bi, j: bj };
+  const periodic = isPeriodic(system.cell, system.pbc);
+  // Which group pairs can have a pair at all.
+  const wanted: number[] = [];
+  for (let p = 0; p < G; p++) {
+    for (let q = p; q < G; q++) {
+      const exists = p === q ? size[p] >= 2 || (periodic && size[p] >= 1) : size[p] >= 1 && size[q] >= 1;
+      if (exists) wanted.push(p * G + q);
+    }
+  }
+  const { start, bound } = searchScale(system);
+  let cutoff = start;
+  const firstCutoff = start;
+  const record = (i: number, j: number, d: number): void => {
+    let p = group[i], q = group[j];
+    let a = i, b = j;
+    if (p > q) { const t = p; p = q; q = t; a = j; b = i; }
+    const key = p * G + q;
+    const cur = distance[key];
+    if (d < cur || (d === cur && (a < bi[key] || (a === bi[key] && b < bj[key])))) {
+      distance[key] = d; bi[key] = a; bj[key] = b;
+    }
+  };
+  let open = wanted.slice();
+  for (;;) {
+    forEachPair(system, cutoff, (i, j, d) => record(i, j, d));
+    open = open.filter((key) => !(distance[key] < Infinity));
+    if (open.length === 0 || cutoff >= bound) break;
+    // Direct finish for small remaining group pairs once the cutoff has grown well past the mean spacing.
+    if (cutoff >= 8 * firstCutoff) {
+      const cost = open.reduce((acc, key) => acc + size[Math.floor(key / G)] * size[key % G], 0);
+      if (cost <= 2e7) {
+        directGroups(system, group, G, open, record);
+        open = [];
+        break;
+      }
+    }
+    cutoff = Math.min(cutoff * 2, Math.max(bound, cutoff));
+  }
+  for (let p = 0; p < G; p++) {
+    for (let q = 0; q < p; q++) {
+      distance[p * G + q] = distance[q * G + p];
+      bi[p * G + q] = bj[q * G + p];
+      bj[p * G + q] = bi[q * G + p];
+    }
+  }
+  return { groups: G, distance, i: bi, j: bj };
+}
+
+function directGroups(
+  system: AtomsGeometry,
+  group: ArrayLike<number>,
+  G: number,
+  keys: number[],
+  record: (i: number, j: number, d: number) => void,
+): void {
+  const n = system.positions.length / 3;
+  const members: number[][] = Array.from({ length: G }, () => []);
+  for (let a = 0; a < n; a++) members[group[a]].push(a);
+  const imager = new MinimumImager(system.cell, system.pbc);
+  const self = imager.shortestLatticeVector().distance;
+  const pos = system.positions;
+  for (const key of keys) {
+    const p = Math.floor(key / G), q = key % G;
+    const A = members[p], B = members[q];
+    for (let u = 0; u < A.length; u++) {
+      const i = A[u];
+      if (p === q && self < Infinity) record(i, i, self);
+      for (let v = p === q ? u + 1 : 0; v < B.length; v++) {
+        const j = B[v];
+        const d = imager.distance(pos[3 * j] - pos[3 * i], pos[3 * j + 1] - pos[3 * i + 1], pos[3 * j + 2] - pos[3 * i + 2]);
+        record(i, j, d);
+      }
+    }
+  }
+}
+
+/**
+ * Closest pair per species pair, keyed "A-B" with the two symbols sorted alphabetically (as in the contacts gate JSON).
+ * Only species pairs that can occur are present.
+ */
+export function minimumDistanceBySpecies(
+  frame: AtomsGeometry & { species: readonly string[] },
+): Map<string, { distance: number; i: number; j: number }> {
+  const names = [...new Set(frame.species)].sort();
+  const index = new Map(names.map((s, k) => [s, k]));
+  const group = Int32Array.from(frame.species, (s) => index.get(s) as number);
+  const res = minimumDistanceByGroup(frame, group, names.length);
+  const out = new Map<string, { distance: number; i: number; j: number }>();
+  const G = names.length;
+  for (let p = 0; p < G; p++) {
+    for (let q = p; q < G; q++) {
+      const key = p * G + q;
+      if (res.distance[key] < Infinity) out.set(`${names[p]}-${names[q]}`, { distance: res.distance[key], i: res.i[key], j: res.j[key] });
+    }
+  }
+  return out;
+}

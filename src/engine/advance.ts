@@ -1,0 +1,165 @@
+/**
+ * The round and stage state machine. Each turn looks at the folded state, finds the first stage that
+ * has not passed (the frontier) and does the one thing it needs: plan it, start its tasks, wait for
+ * them, collect and judge it, or stop (blocked, --until, finished, interrupted). Every step writes its
+ * files before its ledger event and can be repeated after a crash, so a run killed anywhere resumes.
+ */
+import { assessConvergence, type ConditionBands } from '../select/converge.js';
+import type { Engine } from './context.js';
+import { collectStage } from './collect.js';
+import type { CampaignEndedEvent } from './events.js';
+import { startTasks, waitForStage, stopOutstanding, showProgress } from './execute.js';
+import { comparePoints, describeUntil, stageId, untilPoint, type Point, type Stage, type Until } from './ids.js';
+import { materialize, writeTasks } from './plan.js';
+import { STAGE_DEFS } from './stages/index.js';
+import type { ConditionFigures } from './stages/simulate.js';
+import type { StageVerdict } from './stages/types.js';
+import { frontier, stageRecord, summarizeStage } from './state.js';
+import { killPoint } from './testhook.js';
+
+export type Outcome =
+  | { kind: 'finished'; state: 'converged' | 'exhausted'; round: number; reasons: string[]; holding: string[] }
+  | { kind: 'stopped'; at: Point; until: string }
+  | { kind: 'blocked'; round: number; stage: Stage; why: 'tasks' | 'gate'; reasons: string[]; tasks: string[] }
+  | { kind: 'waiting'; round: number; stage: Stage; outstanding: number }
+  | { kind: 'interrupted'; signal: NodeJS.Signals; cancelled: string[] };
+
+export interface AdvanceOptions {
+  until?: Until;
+  /** Wait for tasks on a backend without drain() (a cluster); local always waits. */
+  follow?: boolean;
+}
+
+export async function advance(engine: Engine, opts: AdvanceOptions = {}): Promise<Outcome> {
+  let target: Point | undefined;
+  for (;;) {
+    if (engine.interrupted) return interrupted(engine);
+    const s = engine.state;
+    if (s.ended) {
+      if (s.ended.state === 'exhausted' && engine.view.maxRounds > s.ended.round + 1) {
+        await engine.append({ type: 'campaign_resumed', reason: `rounds.max is now ${engine.view.maxRounds}` });
+        engine.out.line(`round limit raised to ${engine.view.maxRounds}: the campaign goes on`);
+        continue;
+      }
+      return { kind: 'finished', state: s.ended.state, round: s.ended.round, reasons: s.ended.reasons, holding: s.ended.holding };
+    }
+    const p = frontier(s);
+    if (p.round >= engine.view.maxRounds) {
+      const ev: CampaignEndedEvent = {
+        type: 'campaign_ended',
+        state: 'exhausted',
+        round: p.round - 1,
+        reasons: [`the round limit (rounds.max = ${engine.view.maxRounds}) is reached`],
+        holding: [],
+      };
+      await engine.append(ev);
+      continue;
+    }
+    if (opts.until) {
+      target ??= untilPoint(opts.until, p);
+      if (comparePoints(p, target) >= 0) return { kind: 'stopped', at: p, until: describeUntil(opts.until) };
+    }
+    const st = stageRecord(s, p.round, p.stage);
+    if (!st) {
+      await planStage(engine, p.round, p.stage);
+      continue;
+    }
+    const sum = summarizeStage(st, { attempts: engine.view.stages[p.stage].attempts, restarted: engine.restartedHere });
+    switch (sum.phase) {
+      case 'ready':
+      case 'running': {
+        if (sum.toStart.length > 0) {
+          await startTasks(engine, sum.toStart);
+          showProgress(engine, p.round, p.stage, true);
+        }
+        const w = await waitForStage(engine, p.round, p.stage, opts.follow ?? false);
+        if (engine.interrupted) return interrupted(engine);
+        if (w.outstanding > 0) return { kind: 'waiting', round: p.round, stage: p.stage, outstanding: w.outstanding };
+        continue;
+      }
+      case 'failed':
+        return {
+          kind: 'blocked',
+          round: p.round,
+          stage: p.stage,
+          why: 'tasks',
+          reasons: sum.failed.map((t) => {
+            const a = t.attempts[t.attempts.length - 1];
+            const why = a.ended?.reason ?? a.ended?.state ?? 'failed';
+            return `${t.id} (attempt ${a.n}) ${a.ended?.state ?? 'failed'}: ${why}`;
+          }),
+          tasks: sum.failed.map((t) => t.id),
+        };
+      case 'collect':
+        await collectAndGate(engine, p.round, p.stage);
+        continue;
+      case 'blocked':
+        return { kind: 'blocked', round: p.round, stage: p.stage, why: 'gate', reasons: st.gate?.reasons ?? [], tasks: [] };
+      case 'passed':
+      case 'pending':
+        throw new Error(`internal: the frontier ${stageId(p.round, p.stage)} is ${sum.phase}`);
+    }
+  }
+}
+
+async function interrupted(engine: Engine): Promise<Outcome> {
+  const cancelled = await stopOutstanding(engine);
+  return { kind: 'interrupted', signal: engine.interrupted ?? 'SIGINT', cancelled };
+}
+
+/** Plan a stage: register what it reads, write its task directories, then record it as planned. */
+export async function planStage(engine: Engine, round: number, stage: Stage): Promise<void> {
+  const ctx = engine.stageContext(round);
+  const plan = await STAGE_DEFS[stage].plan(ctx);
+  const tasks = materialize(engine.view, round, stage, plan, engine.backend);
+  writeTasks(engine.view, tasks);
+  killPoint('planned');
+  await engine.registerMany(plan.artifacts);
+  await engine.append({ type: 'stage_planned', round, stage, tasks: tasks.map((t) => t.name), inputs: plan.inputs });
+  const builtin = tasks.some((t) => t.json.builtin);
+  const notes = plan.notes?.length ? ` (${plan.notes.join('; ')})` : '';
+  engine.out.line(`${pad(stageId(round, stage))} planned ${tasks.length} task${tasks.length === 1 ? '' : 's'}${builtin ? ' (built in)' : ''}${notes}`);
+}
+
+export function pad(s: string, n = 12): string {
+  return s.length >= n ? s : s + ' '.repeat(n - s.length);
+}
+
+/** Collect a stage whose tasks all succeeded, judge it, record the verdict (and, after simulate, convergence). */
+export async function collectAndGate(engine: Engine, round: number, stage: Stage): Promise<StageVerdict> {
+  const missing = await collectStage(engine, round, stage);
+  const verdict: StageVerdict =
+    missing.length > 0
+      ? { verdict: 'fail', reasons: missing, gates: [{ gate: 'outputs', verdict: 'fail', reasons: missing, figures: { missing: missing.length } }] }
+      : await STAGE_DEFS[stage].gate(engine.stageContext(round));
+  killPoint('gated');
+  await engine.append({ type: 'stage_gated', round, stage, ...verdict });
+  const first = verdict.reasons[0] ?? verdict.gates.flatMap((g) => g.reasons).find((r) => r.length > 0);
+  const more = verdict.reasons.length > 1 ? ` (+${verdict.reasons.length - 1} more)` : '';
+  const summary = first ? `: ${first.split('\n')[0]}${more}` : '';
+  engine.out.line(`${pad(stageId(round, stage))} ${engine.out.word(verdict.verdict)}${summary}`);
+  if (stage === 'simulate' && verdict.verdict !== 'fail') await judgeConvergence(engine, round, verdict);
+  return verdict;
+}
+
+async function judgeConvergence(engine: Engine, round: number, verdict: StageVerdict): Promise<void> {
+  const figs = (verdict.figures?.conditions ?? {}) as Record<string, ConditionFigures>;
+  const conditions: ConditionBands[] = engine.view.conditions.map((c) => {
+    const f = figs[c.name];
+    return { condition: c.name, frames: f?.frames ?? 0, confident: f?.confident ?? 0, informative: f?.informative ?? 0, runaway: f?.runaway ?? 0 };
+  });
+  const val = stageRecord(engine.state, round, 'validate')?.gate;
+  const errorsMeasured = val?.gates.some((g) => g.gate === 'errors' && typeof g.figures.frames === 'number' && g.figures.frames > 0) ?? false;
+  const conv = assessConvergence({
+    round,
+    maxRounds: engine.view.maxRounds,
+    target: engine.view.target,
+    conditions,
+    validationPassed: val !== undefined && val.verdict !== 'fail' && errorsMeasured,
+  });
+  const fractions = conditions.map((c) => `${c.condition} ${c.frames ? (c.confident / c.frames).toFixed(3) : '-'}`).join(', ');
+  engine.out.line(`${pad(`r${round}`)} confident fraction: ${fractions} (target ${engine.view.target})`);
+  if (conv.state !== 'continue') {
+    await engine.append({ type: 'campaign_ended', state: conv.state, round, reasons: conv.reasons, holding: conv.holding });
+  }
+}

@@ -1,0 +1,144 @@
+/**
+ * `ratchet run --dry-run`: what the next step would be, with every script of it rendered into a plan
+ * folder (<campaign>/.ratchet/plan/<time>/rounds/...), executing nothing and writing nothing to the
+ * ledger. The ledger is only read (no lock). Planning runs as it would (it reads upstream outputs and
+ * hashes inputs) but its events stay in memory.
+ */
+import { readFileSync } from 'node:fs';
+import { join } from 'node:path';
+import type { Backend } from '../backends/backend.js';
+import { TASK_FILE, writeTaskFilesSync } from '../backends/task-files.js';
+import { readLedger, LedgerError } from '../ledger/journal.js';
+import { shellQuote } from '../backends/shell.js';
+import type { Outcome } from './advance.js';
+import { pad } from './advance.js';
+import { Engine, MemorySink } from './context.js';
+import { taskDirOf } from './execute.js';
+import { comparePoints, describeUntil, stageId, untilPoint, type Until } from './ids.js';
+import { PLAN_DIR, abs } from './layout.js';
+import type { Output } from './output.js';
+import { materialize, taskSpec, writeTasks, type TaskJson } from './plan.js';
+import { describeOutcome, type RunResult } from './run.js';
+import type { SamplePolicy } from './sample-policy.js';
+import { STAGE_DEFS } from './stages/index.js';
+import { foldEvents, frontier, stageRecord, summarizeStage } from './state.js';
+import type { CampaignView } from './view.js';
+
+export interface DryRunOptions {
+  view: CampaignView;
+  backend: Backend;
+  out: Output;
+  error: (m: string) => void;
+  until?: Until;
+  samplePolicy: SamplePolicy;
+  campaignArg: string;
+}
+
+const SHOWN = 20;
+
+export async function dryRun(o: DryRunOptions): Promise<RunResult> {
+  let events;
+  try {
+    ({ events } = await readLedger(o.view.dir));
+  } catch (err) {
+    if (err instanceof LedgerError) {
+      o.error(err.message);
+      return { exitCode: 2 };
+    }
+    throw err;
+  }
+  const state = foldEvents(events);
+  // Starting structures outside the campaign directory stay where they are (a run copies them into inputs/).
+  const view = o.view;
+  const engine = new Engine(view, new MemorySink(state.lastSeq), state, o.backend, o.out, o.samplePolicy, true);
+  const out = o.out;
+  const stamp = new Date().toISOString().replace(/[:.]/g, '-');
+  const planRoot = abs(view.dir, `${PLAN_DIR}/${stamp}`);
+  const planRel = `${PLAN_DIR}/${stamp}`;
+  out.line(`dry run: nothing is executed and nothing is written to the ledger`);
+
+  if (state.ended && !(state.ended.state === 'exhausted' && view.maxRounds > state.ended.round + 1)) {
+    out.line(`the campaign has ended (${state.ended.state} in round ${state.ended.round}); nothing would run`);
+    return { exitCode: 0 };
+  }
+  const p = frontier(state);
+  if (p.round >= view.maxRounds) {
+    out.line(`the round limit (${view.maxRounds}) is reached; a run would record the campaign as exhausted`);
+    return { exitCode: 0 };
+  }
+  if (o.until && comparePoints(p, untilPoint(o.until, p)) >= 0) {
+    out.line(`the campaign stands at ${stageId(p.round, p.stage)}: --until ${describeUntil(o.until)} stops before anything runs`);
+    return { exitCode: 0 };
+  }
+  const sid = stageId(p.round, p.stage);
+  const st = stageRecord(state, p.round, p.stage);
+  const command = view.stages[p.stage].command;
+  if (!st) {
+    const plan = await STAGE_DEFS[p.stage].plan(engine.stageContext(p.round));
+    const tasks = materialize(view, p.round, p.stage, plan, o.backend);
+    writeTasks(view, tasks, planRoot);
+    const builtin = tasks.some((t) => t.json.builtin);
+    out.line(`next step: plan and run ${sid}: ${tasks.length} task${tasks.length === 1 ? '' : 's'}${plan.notes?.length ? ` (${plan.notes.join('; ')})` : ''}`);
+    if (builtin) out.line(`  ratchet would run the built-in sample policy itself (no batch script)`);
+    else out.line(`  command: ${command}`);
+    listTasks(out, tasks.map((t) => t.id), view, p.stage, o.backend);
+    out.line(`scripts and task.json files: ${planRel}/`);
+    return { exitCode: 0 };
+  }
+  const sum = summarizeStage(st, { attempts: view.stages[p.stage].attempts });
+  switch (sum.phase) {
+    case 'ready':
+    case 'running': {
+      const toStart = sum.toStart;
+      for (const t of toStart) {
+        const dir = taskDirOf(engine, t);
+        const json = readJsonSync<TaskJson>(join(dir, TASK_FILE));
+        const target = join(planRoot, dir.slice(view.dir.length));
+        if (!json) {
+          out.line(`  ${t.id}: ${join(dir, TASK_FILE)} is missing; a run would plan it again`);
+          continue;
+        }
+        if (json.builtin) writeTasks(view, [{ name: t.name, id: t.id, dir, json, files: {} }], planRoot);
+        else writeTaskFilesSync(target, o.backend.render(taskSpec(view, json, dir)), json);
+      }
+      if (toStart.length > 0) {
+        out.line(`next step: start ${toStart.length} task(s) of ${sid}${command ? `: ${command}` : ''}`);
+        listTasks(out, toStart.map((t) => t.id), view, p.stage, o.backend);
+        out.line(`scripts and task.json files: ${planRel}/`);
+      }
+      if (sum.running.length > 0) out.line(`${sum.running.length} task(s) of ${sid} were started by an earlier run; a run would wait for them`);
+      return { exitCode: 0 };
+    }
+    case 'collect':
+      out.line(`next step: register the outputs of ${sid} as artifacts and judge them with its gate (no task runs)`);
+      return { exitCode: 0 };
+    case 'failed':
+    case 'blocked': {
+      const outcome: Outcome =
+        sum.phase === 'failed'
+          ? { kind: 'blocked', round: p.round, stage: p.stage, why: 'tasks', tasks: sum.failed.map((t) => t.id), reasons: sum.failed.map((t) => `${t.id}: ${t.attempts[t.attempts.length - 1].ended?.reason ?? 'failed'}`) }
+          : { kind: 'blocked', round: p.round, stage: p.stage, why: 'gate', tasks: [], reasons: st.gate?.reasons ?? [] };
+      for (const l of describeOutcome(outcome, o.campaignArg)) out.line(l);
+      out.line(`nothing would run until then (ratchet retry ${shellQuote(o.campaignArg)} ${sid})`);
+      return { exitCode: 1 };
+    }
+    default:
+      out.line(`${sid}: nothing to do`);
+      return { exitCode: 0 };
+  }
+}
+
+function listTasks(out: Output, ids: string[], view: CampaignView, stage: CampaignView['stages'] extends Record<infer K, unknown> ? K : never, backend: Backend): void {
+  const r = view.stages[stage].resources;
+  out.line(`  backend ${backend.name}; each task: ${r.cpus} cpu(s), ${r.gpus} gpu(s)${r.memory_mb ? `, ${r.memory_mb} MiB` : ''}, walltime ${r.walltime_s} s`);
+  for (const id of ids.slice(0, SHOWN)) out.line(`  ${pad(id, 20)} rounds/${id}/run.sh`);
+  if (ids.length > SHOWN) out.line(`  ... and ${ids.length - SHOWN} more`);
+}
+
+function readJsonSync<T>(p: string): T | undefined {
+  try {
+    return JSON.parse(readFileSync(p, 'utf8')) as T;
+  } catch {
+    return undefined;
+  }
+}

@@ -1,0 +1,155 @@
+/**
+ * The events the engine writes to the ledger (`.ratchet/ledger.jsonl`). Each is one line; `seq` and
+ * `at` are added by the Journal. Field names are part of the ledger's format: add, never rename.
+ */
+import type { ExitRecord, TaskState } from '../backends/backend.js';
+import type { Stage } from './ids.js';
+
+/** A `ratchet run` or `ratchet retry` began (after the campaign loaded and the lock was taken). */
+export interface RunStartedEvent {
+  type: 'run_started';
+  command: 'run' | 'retry';
+  backend: string;
+  jobs: number;
+  until?: string;
+  host: string;
+  pid: number;
+  campaign_sha256: string;
+  tool_version: string;
+}
+
+/** A run ended normally or by a signal. Absent after a crash (SIGKILL, power loss). */
+export interface RunEndedEvent {
+  type: 'run_ended';
+  outcome: 'finished' | 'advanced' | 'blocked' | 'waiting' | 'stopped' | 'interrupted' | 'error';
+  exit_code: number;
+  signal?: string;
+  /** The message of an error that ended the run. */
+  error?: string;
+}
+
+/**
+ * A stage's task directories (task.json, run.sh, inputs) are written. `tasks` are the task names in
+ * order ("0000", ... or condition names). `inputs` are the artifact ids the stage reads.
+ */
+export interface StagePlannedEvent {
+  type: 'stage_planned';
+  round: number;
+  stage: Stage;
+  tasks: string[];
+  inputs: string[];
+}
+
+/** A task attempt was started (local) or submitted (cluster); written before the next one is. */
+export interface TaskSubmittedEvent {
+  type: 'task_submitted';
+  /** "r0/label/0003". */
+  task: string;
+  attempt: number;
+  job_id: string;
+  backend: string;
+}
+
+/** A task attempt reached a terminal state. */
+export interface TaskEndedEvent {
+  type: 'task_ended';
+  task: string;
+  attempt: number;
+  state: TaskState;
+  exit_code?: number;
+  start?: string;
+  end?: string;
+  host?: string;
+  /** Plain words for anything but success. */
+  reason?: string;
+}
+
+/** A task will run again as attempt `attempt` (by `ratchet retry`, or at once after a cancel or a lost job). */
+export interface TaskRetryEvent {
+  type: 'task_retry';
+  task: string;
+  attempt: number;
+  reason: string;
+  /** Asked for by `ratchet retry` (the task's count of failed attempts starts again). */
+  manual?: boolean;
+  /** Where the previous attempt's exit record and logs were moved, relative to the campaign dir. */
+  archived?: string;
+}
+
+/** One gate's judgement, as kept in a stage's verdict. */
+export interface GateRecord {
+  gate: string;
+  verdict: 'pass' | 'warn' | 'fail';
+  reasons: string[];
+  figures: Record<string, unknown>;
+  /** The task whose outputs were judged, when the gate looked at one task. */
+  task?: string;
+}
+
+/** The verdict on a stage's outputs. The campaign advances past a stage only on pass or warn. */
+export interface StageGatedEvent {
+  type: 'stage_gated';
+  round: number;
+  stage: Stage;
+  verdict: 'pass' | 'warn' | 'fail';
+  /** Plain words: why it failed or warned (empty for a clean pass). */
+  reasons: string[];
+  gates: GateRecord[];
+  /** Stage-level figures (e.g. frames selected, confident fraction per condition). */
+  figures?: Record<string, unknown>;
+}
+
+/** `ratchet retry` on a gate-blocked stage with no failed task: judge it again. */
+export interface StageRegateEvent {
+  type: 'stage_regate';
+  round: number;
+  stage: Stage;
+}
+
+/** The campaign is over: converged, or out of rounds. */
+export interface CampaignEndedEvent {
+  type: 'campaign_ended';
+  state: 'converged' | 'exhausted';
+  round: number;
+  reasons: string[];
+  /** Conditions that held the campaign back (exhausted). */
+  holding: string[];
+}
+
+/** An exhausted campaign goes on because its round limit was raised. */
+export interface CampaignResumedEvent {
+  type: 'campaign_resumed';
+  reason: string;
+}
+
+/** Registered output (the ledger helper's artifact contract). */
+export interface ArtifactEvent {
+  type: 'artifact';
+  id: string;
+  path: string;
+  role: string;
+  task?: string;
+  inputs: string[];
+  command?: string;
+  campaign_sha256: string;
+  tool_version: string;
+  bytes: number;
+  kind: 'file' | 'dir';
+  round?: number;
+  stage?: Stage;
+}
+
+export type EngineEvent =
+  | RunStartedEvent
+  | RunEndedEvent
+  | StagePlannedEvent
+  | TaskSubmittedEvent
+  | TaskEndedEvent
+  | TaskRetryEvent
+  | StageGatedEvent
+  | StageRegateEvent
+  | CampaignEndedEvent
+  | CampaignResumedEvent
+  | ArtifactEvent;
+
+export type { ExitRecord };

@@ -1,0 +1,274 @@
+/**
+ * `ratchet status`: where a campaign stands, from its ledger folded into the campaign state (read
+ * only, no lock): rounds by stages with task counts, gate verdicts with their figures, the confident
+ * fraction per condition per round, what blocks and what to do next.
+ */
+import { hostname } from 'node:os';
+import { foldLedger, LedgerError } from '../ledger/journal.js';
+import { processState, readLock } from '../ledger/lock.js';
+import { CampaignError, loadCampaign } from '../campaign/load.js';
+import type { Outcome } from './advance.js';
+import { pad } from './advance.js';
+import { STAGES, stageId, type Stage } from './ids.js';
+import type { Output } from './output.js';
+import { describeOutcome } from './run.js';
+import type { ConditionFigures } from './stages/simulate.js';
+import { applyEvent, emptyState, frontier, summarizeStage, type CampaignState, type StagePhase, type TaskPhase } from './state.js';
+import { campaignView, type CampaignView } from './view.js';
+
+export interface StageStatus {
+  stage: Stage;
+  phase: StagePhase;
+  tasks: number;
+  /** Tasks by the state of their current attempt. */
+  counts: Partial<Record<TaskPhase, number>>;
+  /** Attempts made in all (a task run twice counts 2). */
+  attempts: number;
+  verdict?: 'pass' | 'warn' | 'fail';
+  reasons?: string[];
+  figures?: Record<string, unknown>;
+  gates?: { gate: string; verdict: string; task?: string; reasons: string[] }[];
+}
+
+export interface RoundStatus {
+  round: number;
+  stages: StageStatus[];
+  /** From the simulate gate: frames and bands per condition, with the confident fraction. */
+  conditions?: Record<string, ConditionFigures>;
+}
+
+export interface StatusReport {
+  campaign: { name: string; file: string; dir: string; sha256: string };
+  /** A ratchet process holding the campaign's lock now. */
+  running: { host?: string; pid?: number; started?: string; command?: string; alive: boolean | null } | null;
+  ledger: { events: number; torn_line?: number };
+  /** The first stage that has not passed (null once the campaign ended). */
+  at: { round: number; stage: Stage } | null;
+  ended?: { state: 'converged' | 'exhausted'; round: number; reasons: string[]; holding: string[] };
+  rounds: RoundStatus[];
+  target: number;
+  conditions: string[];
+  blocking?: { stage: string; why: 'tasks' | 'gate'; reasons: string[]; next: string[] };
+  last_run?: { command: string; started: string; outcome?: string; exit_code?: number; ended?: string };
+}
+
+/** Fold a campaign's ledger into its state (streaming; the reducer is O(1) per event). */
+export async function foldCampaign(dir: string): Promise<{ state: CampaignState; torn?: { line: number } }> {
+  const r = await foldLedger(dir, applyEvent, emptyState());
+  return r.torn ? { state: r.state, torn: { line: r.torn.line } } : { state: r.state };
+}
+
+export function buildStatus(view: CampaignView, state: CampaignState, campaignArg: string): StatusReport {
+  const rounds: RoundStatus[] = state.rounds.map((rr) => {
+    const stages: StageStatus[] = [];
+    for (const stage of STAGES) {
+      const st = rr.stages[stage];
+      const sum = summarizeStage(st, { attempts: view.stages[stage].attempts });
+      const s: StageStatus = {
+        stage,
+        phase: sum.phase,
+        tasks: st?.tasks.length ?? 0,
+        counts: sum.counts,
+        attempts: st ? st.tasks.reduce((n, t) => n + t.attempts.filter((a) => a.job_id !== undefined || a.ended).length, 0) : 0,
+      };
+      if (st?.gate) {
+        s.verdict = st.gate.verdict;
+        s.reasons = st.gate.reasons;
+        if (st.gate.figures) s.figures = st.gate.figures;
+        s.gates = st.gate.gates.map((g) => ({ gate: g.gate, verdict: g.verdict, ...(g.task ? { task: g.task } : {}), reasons: g.reasons }));
+      }
+      stages.push(s);
+    }
+    const out: RoundStatus = { round: rr.round, stages };
+    const sim = rr.stages.simulate?.gate?.figures?.conditions as Record<string, ConditionFigures> | undefined;
+    if (sim) out.conditions = sim;
+    return out;
+  });
+  const report: StatusReport = {
+    campaign: { name: view.name, file: campaignArg, dir: view.dir, sha256: view.sha256 },
+    running: null,
+    ledger: { events: state.events },
+    at: state.ended ? null : frontier(state),
+    rounds,
+    target: view.target,
+    conditions: view.conditions.map((c) => c.name),
+  };
+  if (state.ended) {
+    report.ended = { state: state.ended.state, round: state.ended.round, reasons: state.ended.reasons, holding: state.ended.holding };
+  }
+  if (state.lastRun) {
+    const { started, ended } = state.lastRun;
+    report.last_run = { command: started.command, started: started.at };
+    if (ended) Object.assign(report.last_run, { outcome: ended.outcome, exit_code: ended.exit_code, ended: ended.at });
+  }
+  if (report.at) {
+    const { round, stage } = report.at;
+    const st = state.rounds[round]?.stages[stage];
+    const sum = summarizeStage(st, { attempts: view.stages[stage].attempts });
+    let o: Outcome | undefined;
+    if (sum.phase === 'failed') {
+      o = {
+        kind: 'blocked',
+        round,
+        stage,
+        why: 'tasks',
+        tasks: sum.failed.map((t) => t.id),
+        reasons: sum.failed.map((t) => `${t.id}: ${t.attempts[t.attempts.length - 1].ended?.reason ?? 'failed'}`),
+      };
+    } else if (sum.phase === 'blocked') {
+      o = { kind: 'blocked', round, stage, why: 'gate', tasks: [], reasons: st?.gate?.reasons ?? [] };
+    }
+    if (o && o.kind === 'blocked') {
+      const lines = describeOutcome(o, campaignArg);
+      report.blocking = { stage: stageId(round, stage), why: o.why, reasons: o.reasons, next: lines.filter((l) => /^\s*(next:|\()/.test(l)).map((l) => l.trim()) };
+    }
+  }
+  return report;
+}
+
+export interface StatusResult {
+  exitCode: number;
+  report?: StatusReport;
+}
+
+/** Load the campaign and fold its ledger. Exit code 2 for a campaign or ledger that cannot be read. */
+export async function campaignStatus(campaignArg: string, error: (m: string) => void): Promise<StatusResult> {
+  let view: CampaignView;
+  try {
+    view = campaignView(await loadCampaign(campaignArg, { checkFiles: false }));
+  } catch (err) {
+    if (err instanceof CampaignError) {
+      error(err.message);
+      return { exitCode: 2 };
+    }
+    throw err;
+  }
+  let folded;
+  try {
+    folded = await foldCampaign(view.dir);
+  } catch (err) {
+    if (err instanceof LedgerError) {
+      error(err.message);
+      return { exitCode: 2 };
+    }
+    throw err;
+  }
+  const report = buildStatus(view, folded.state, campaignArg);
+  if (folded.torn) report.ledger.torn_line = folded.torn.line;
+  const lock = await readLock(view.dir);
+  if (lock) {
+    const alive = lock.host === hostname() && typeof lock.pid === 'number' ? processState(lock.pid) === 'alive' : null;
+    report.running = { host: lock.host, pid: lock.pid, started: lock.started, command: lock.command, alive };
+  }
+  return { exitCode: 0, report };
+}
+
+const CELL = 14;
+
+/** The report as text for a terminal or a log. */
+export function formatStatus(r: StatusReport, out: Output): void {
+  out.line(`campaign ${r.campaign.name} (${r.campaign.file})`);
+  let ledger = `ledger: ${r.ledger.events} event${r.ledger.events === 1 ? '' : 's'}`;
+  if (r.ledger.torn_line !== undefined) ledger += ` (line ${r.ledger.torn_line} was cut short by a crash; the next run sets it aside)`;
+  if (r.last_run) {
+    ledger += `; last ${r.last_run.command} started ${r.last_run.started}`;
+    if (r.last_run.outcome) ledger += `, ${r.last_run.outcome} (exit ${r.last_run.exit_code})`;
+  }
+  out.line(ledger);
+  if (r.running) {
+    if (r.running.alive === false) out.line(`lock: left by pid ${r.running.pid}, which is no longer running (the next run takes it over)`);
+    else out.line(`running now: pid ${r.running.pid} on ${r.running.host} since ${r.running.started}`);
+  }
+  if (r.rounds.length === 0) {
+    out.line('nothing has run yet; start with: ratchet run --dry-run ' + r.campaign.file);
+    return;
+  }
+  out.line('');
+  out.line(pad('round', 7) + STAGES.map((s) => pad(s, CELL)).join(''));
+  for (const rr of r.rounds) {
+    out.line(pad(`r${rr.round}`, 7) + rr.stages.map((s) => cellText(out, s)).join(''));
+  }
+  const verdicts: string[] = [];
+  for (const rr of r.rounds) {
+    for (const s of rr.stages) {
+      if (!s.verdict) continue;
+      const first = s.reasons?.length ? s.reasons[0] : (s.gates ?? []).flatMap((g) => g.reasons).find(Boolean) ?? '';
+      verdicts.push(`  ${pad(stageId(rr.round, s.stage), 14)}${out.word(s.verdict)}${' '.repeat(6 - s.verdict.length)}${oneLine(first)}`);
+    }
+  }
+  if (verdicts.length) {
+    out.line('');
+    out.line('gates:');
+    for (const v of verdicts) out.line(v);
+  }
+  const withConditions = r.rounds.filter((rr) => rr.conditions);
+  if (withConditions.length) {
+    out.line('');
+    out.line(`confident fraction per condition (target ${r.target}):`);
+    const width = Math.max(8, ...r.conditions.map((c) => c.length + 2));
+    out.line(pad('', 7) + r.conditions.map((c) => pad(c, width)).join(''));
+    for (const rr of withConditions) {
+      out.line(
+        pad(`r${rr.round}`, 7) +
+          r.conditions
+            .map((c) => {
+              const f = rr.conditions![c];
+              const v = f?.confident_fraction;
+              return pad(v === null || v === undefined ? '-' : v.toFixed(3), width);
+            })
+            .join(''),
+      );
+    }
+  }
+  out.line('');
+  if (r.ended) {
+    out.line(`campaign ${out.word(r.ended.state)} in round ${r.ended.round}${r.ended.holding.length ? `; held back by ${r.ended.holding.join(', ')}` : ''}`);
+    for (const reason of r.ended.state === 'exhausted' ? r.ended.reasons : []) out.line(`  - ${reason}`);
+    return;
+  }
+  if (r.at) {
+    const rr = r.rounds[r.at.round];
+    const s = rr?.stages.find((k) => k.stage === r.at!.stage);
+    if (r.blocking) {
+      out.line(`${out.word('blocked')}: ${r.blocking.stage} (${r.blocking.why === 'tasks' ? 'failed tasks' : 'its gate failed'})`);
+      for (const reason of r.blocking.reasons) out.line(`  - ${oneLine(reason, 300)}`);
+      for (const n of r.blocking.next) out.line(n);
+    } else if (s && (s.phase === 'running' || s.phase === 'ready')) {
+      const done = Object.entries(s.counts).filter(([k]) => k !== 'planned' && k !== 'submitted').reduce((n, [, v]) => n + (v ?? 0), 0);
+      out.progress(`now: ${stageId(r.at.round, r.at.stage)}`, done, s.tasks, `${s.counts.submitted ?? 0} running`, true);
+      out.endProgress(`now: ${stageId(r.at.round, r.at.stage)}`);
+      if (out.tty) out.line(`now: ${stageId(r.at.round, r.at.stage)} ${done}/${s.tasks} ended, ${s.counts.submitted ?? 0} running`);
+      if (!r.running || r.running.alive === false) out.line(`next: ratchet run ${r.campaign.file}`);
+    } else {
+      out.line(`next: ${stageId(r.at.round, r.at.stage)}; run: ratchet run ${r.campaign.file}`);
+    }
+  }
+}
+
+function cellText(out: Output, s: StageStatus): string {
+  if (s.phase === 'pending') return pad('·', CELL);
+  const ok = s.counts.succeeded ?? 0;
+  let w: string;
+  switch (s.phase) {
+    case 'passed':
+    case 'blocked':
+      w = s.verdict ?? '?';
+      break;
+    case 'failed':
+      w = 'failed';
+      break;
+    case 'collect':
+      w = 'judging';
+      break;
+    default:
+      w = (s.counts.submitted ?? 0) > 0 ? 'running' : 'ready';
+  }
+  const plain = `${w} ${ok}/${s.tasks}`;
+  return `${out.word(w)} ${ok}/${s.tasks}${' '.repeat(Math.max(1, CELL - plain.length))}`;
+}
+
+function oneLine(s: string, max = 160): string {
+  const l = s.split('\n')[0];
+  return l.length > max ? `${l.slice(0, max)}…` : l;
+}
+

@@ -1,0 +1,498 @@
+/**
+ * drift: is total energy conserved along a molecular dynamics run?
+ *
+ * Total energy per atom against time, from extended XYZ info (`total_energy`, or `energy` plus the kinetic energy
+ * from `velocities` and masses) or from a thermo table. Figures: least-squares slope (meV/atom/ps), standard
+ * deviation (meV/atom), largest |E(t) - E(0)| (meV/atom), mean temperature from the velocities by equipartition.
+ * A run that blew up (non-finite energy, positions, velocities or forces) fails, naming the first bad frame;
+ * figures then cover the frames before it.
+ *
+ * Only meaningful for a run whose total energy should be conserved (NVE). For a thermostatted run point it at the
+ * thermostat's conserved quantity (e.g. a thermo column holding it) or read only the blow-up part of the verdict.
+ */
+import { massesOf } from '../atoms/elements.js';
+import { kineticEnergy, temperatureFromKinetic } from '../atoms/units.js';
+import { open } from 'node:fs/promises';
+import type { Frame } from '../atoms/frame.js';
+import { firstNonFinite, frameLabel, infoNumber, mapFiles, defaultWorkers } from './frames.js';
+import { findColumn, readThermoTable, type ThermoTable } from './thermo.js';
+import { GateInputError, type FileSpan, type GateResult } from './types.js';
+import { Judgement, fmt } from './verdict.js';
+
+/**
+ * Default limits. Common practice (orders of magnitude, no single published source; set your own):
+ * a well-behaved NVE run with a sensible time step drifts far less than 0.1 meV/atom/ps (i.e. 100 meV/atom/ns),
+ * and its total energy stays within a few meV/atom of the start.
+ */
+export const DRIFT_DEFAULTS = {
+  /** |slope| above this warns (meV/atom/ps). */
+  slopeWarn: 0.1,
+  /** |slope| above this fails (meV/atom/ps). */
+  slopeFail: 1.0,
+  /** max |E(t) - E(0)| above this warns (meV/atom). */
+  excursionWarn: 10,
+  /** max |E(t) - E(0)| above this fails (meV/atom). */
+  excursionFail: 100,
+} as const;
+
+/** Where each frame's numbers are (extended XYZ keys). */
+export interface DriftFrameOptions {
+  /** Info key of the total energy in eV (default total_energy). */
+  totalKey?: string;
+  /** Info key of the potential energy in eV (default energy). */
+  energyKey?: string;
+  /** Per-atom array of velocities in Å/fs (default velocities). */
+  velocitiesKey?: string;
+  /** Per-atom array of masses in amu; standard atomic weights when absent (default masses). */
+  massesKey?: string;
+  /** Per-atom array of forces checked for non-finite values when present (default forces). */
+  forcesKey?: string;
+  /** Info key of the time in fs (default time). */
+  timeKey?: string;
+  /** Info key of the MD step number (default step), used with a time step when there is no time. */
+  stepKey?: string;
+  /** Info key of a temperature in K, used for the mean when there are no velocities (default temperature). */
+  temperatureKey?: string;
+  /** auto: total_energy when the frame has it, else energy + kinetic; or force one of them. */
+  source?: 'auto' | 'total' | 'kinetic';
+}
+
+export interface DriftOptions extends DriftFrameOptions {
+  /** MD time step in fs: time = step x timestep, or frame index x timestep when frames carry no step number. */
+  timestep?: number;
+  /** Degrees of freedom for the temperature (default 3N - 3 when any axis is periodic, else 3N). */
+  dof?: number;
+  slopeWarn?: number;
+  slopeFail?: number;
+  excursionWarn?: number;
+  excursionFail?: number;
+  /** Input kind; auto decides by file extension (.csv .tsv .dat .txt .log .thermo are tables) or first line. */
+  format?: 'auto' | 'xyz' | 'table';
+  /** Thermo tables: number of atoms (tables do not say). Give 1 when the energy column is already per atom. */
+  atoms?: number;
+  /** Thermo tables: column names (defaults: time/time_fs/t, step, total_energy/etot/toteng/etotal/e_tot, temperature/temp). */
+  timeColumn?: string;
+  stepColumn?: string;
+  energyColumn?: string;
+  temperatureColumn?: string;
+  /** Thermo tables: unit of the time column (default fs). */
+  timeUnit?: 'fs' | 'ps';
+  /** Worker threads for reading extended XYZ (default min(2, cpus)). */
+  workers?: number;
+}
+
+/** What one frame contributes (small and clonable: this is what mapFrames returns from a worker). */
+export interface DriftSample {
+  atoms: number;
+  periodic: boolean;
+  /** Total energy in eV (not per atom), null when the frame cannot give one. */
+  total: number | null;
+  source: 'total_energy' | 'energy+kinetic' | null;
+  /** Kinetic energy in eV from the velocities, null without velocities. */
+  kinetic: number | null;
+  /** Temperature from the info, K (used only without velocities). */
+  temperature: number | null;
+  /** Time in fs from the info, or null. */
+  time: number | null;
+  /** Step number from the info, or null. */
+  step: number | null;
+  /** Why the frame shows a blown-up run ("non-finite positions (atom 3)"), or null. */
+  bad: string | null;
+  /** Why the frame cannot give a total energy (missing key...), or null. */
+  missing: string | null;
+}
+
+/** Default degrees of freedom: 3N - 3 for a periodic system (total momentum fixed), 3N otherwise. */
+export function defaultDof(atoms: number, periodic: boolean): number {
+  return periodic ? 3 * atoms - 3 : 3 * atoms;
+}
+
+function realColumn(frame: Frame, key: string, width: number): Float64Array | undefined | 'wrong' {
+  const col = frame.arrays.get(key);
+  if (!col) return undefined;
+  if (col.type !== 'R' && col.type !== 'I') return 'wrong';
+  if (col.width !== width) return 'wrong';
+  return col.values as Float64Array;
+}
+
+/** The per-frame part of the drift gate (pure; what mapFrames runs on each frame). */
+export function driftFrame(frame: Frame, _index: number, options: DriftFrameOptions = {}): DriftSample {
+  const o = {
+    totalKey: options.totalKey ?? 'total_energy',
+    energyKey: options.energyKey ?? 'energy',
+    velocitiesKey: options.velocitiesKey ?? 'velocities',
+    massesKey: options.massesKey ?? 'masses',
+    forcesKey: options.forcesKey ?? 'forces',
+    timeKey: options.timeKey ?? 'time',
+    stepKey: options.stepKey ?? 'step',
+    temperatureKey: options.temperatureKey ?? 'temperature',
+    source: options.source ?? 'auto',
+  };
+  const n = frame.species.length;
+  const s: DriftSample = {
+    atoms: n,
+    periodic: frame.pbc.some(Boolean),
+    total: null,
+    source: null,
+    kinetic: null,
+    temperature: infoNumber(frame.info, o.temperatureKey) ?? null,
+    time: infoNumber(frame.info, o.timeKey) ?? null,
+    step: infoNumber(frame.info, o.stepKey) ?? null,
+    bad: null,
+    missing: null,
+  };
+  const badAtom = (what: string, values: ArrayLike<number>, width: number): boolean => {
+    const k = firstNonFinite(values);
+    if (k < 0) return false;
+    s.bad = `non-finite ${what} (atom ${Math.floor(k / width)})`;
+    return true;
+  };
+  if (badAtom('positions', frame.positions, 3)) return s;
+  const forces = realColumn(frame, o.forcesKey, 3);
+  if (forces instanceof Float64Array && badAtom(o.forcesKey, forces, 3)) return s;
+  const vel = realColumn(frame, o.velocitiesKey, 3);
+  if (vel === 'wrong') {
+    s.missing = `per-atom '${o.velocitiesKey}' is not a real column of width 3`;
+    return s;
+  }
+  if (vel && badAtom(o.velocitiesKey, vel, 3)) return s;
+  if (vel) {
+    const masses = realColumn(frame, o.massesKey, 1);
+    let m: ArrayLike<number>;
+    if (masses instanceof Float64Array) m = masses;
+    else {
+      try {
+        m = massesOf(frame.species);
+      } catch (err) {
+        s.missing = `${(err as Error).message}; give per-atom '${o.massesKey}' (amu) for the kinetic energy`;
+        return s;
+      }
+    }
+    s.kinetic = kineticEnergy(m, vel);
+  }
+  const total = infoNumber(frame.info, o.totalKey);
+  const pot = infoNumber(frame.info, o.energyKey);
+  if (o.source !== 'kinetic' && total !== undefined) {
+    s.total = total;
+    s.source = 'total_energy';
+  } else if (o.source !== 'total' && pot !== undefined && s.kinetic !== null) {
+    s.total = pot + s.kinetic;
+    s.source = 'energy+kinetic';
+  } else {
+    s.missing =
+      o.source === 'total'
+        ? `no '${o.totalKey}' in the frame info`
+        : o.source === 'kinetic'
+          ? pot === undefined
+            ? `no '${o.energyKey}' in the frame info`
+            : `no per-atom '${o.velocitiesKey}' to add the kinetic energy`
+          : `neither '${o.totalKey}' nor '${o.energyKey}' with per-atom '${o.velocitiesKey}'`;
+    return s;
+  }
+  if (!Number.isFinite(s.total)) s.bad = `non-finite total energy (${s.total})`;
+  return s;
+}
+
+export interface DriftFigures {
+  frames: number;
+  atoms: number;
+  slope_meV_per_atom_per_ps: number | null;
+  std_meV_per_atom: number | null;
+  max_excursion_meV_per_atom: number | null;
+  mean_temperature_K: number | null;
+  /** Frames before the first bad one (all frames for a clean run): what the figures are computed over. */
+  frames_used: number;
+  first_bad_frame: number | null;
+  duration_ps: number | null;
+  initial_energy_eV_per_atom: number | null;
+  energy_source: string | null;
+  time_source: string | null;
+  degrees_of_freedom: number | null;
+  files: FileSpan[];
+  thresholds: { slope_warn: number; slope_fail: number; excursion_warn: number; excursion_fail: number };
+}
+
+/** Least-squares slope, population standard deviation and largest excursion from the first value. */
+export function seriesFigures(timeFs: ArrayLike<number>, ePerAtomEv: ArrayLike<number>): {
+  slope_meV_per_atom_per_ps: number | null;
+  std_meV_per_atom: number | null;
+  max_excursion_meV_per_atom: number | null;
+} {
+  const n = Math.min(timeFs.length, ePerAtomEv.length);
+  if (n === 0) return { slope_meV_per_atom_per_ps: null, std_meV_per_atom: null, max_excursion_meV_per_atom: null };
+  let tm = 0;
+  let em = 0;
+  for (let k = 0; k < n; k++) {
+    tm += timeFs[k];
+    em += ePerAtomEv[k];
+  }
+  tm /= n;
+  em /= n;
+  let stt = 0;
+  let ste = 0;
+  let see = 0;
+  let exc = 0;
+  const e0 = ePerAtomEv[0];
+  for (let k = 0; k < n; k++) {
+    const dt = timeFs[k] - tm;
+    const de = ePerAtomEv[k] - em;
+    stt += dt * dt;
+    ste += dt * de;
+    see += de * de;
+    exc = Math.max(exc, Math.abs(ePerAtomEv[k] - e0));
+  }
+  // eV/atom/fs -> meV/atom/ps: x 1000 (meV per eV) x 1000 (fs per ps)
+  const slope = n >= 2 && stt > 0 ? (ste / stt) * 1e6 : null;
+  return { slope_meV_per_atom_per_ps: slope, std_meV_per_atom: Math.sqrt(see / n) * 1e3, max_excursion_meV_per_atom: exc * 1e3 };
+}
+
+/** One point of the series the figures are made from, whatever the source. */
+export interface DriftPoint {
+  timeFs: number;
+  totalEv: number;
+  temperature: number | null;
+}
+
+interface SeriesInput {
+  frames: number;
+  atoms: number;
+  points: DriftPoint[];
+  firstBad: { index: number; what: string } | null;
+  energySource: string | null;
+  timeSource: string | null;
+  dof: number | null;
+  files: FileSpan[];
+}
+
+function judge(input: SeriesInput, options: DriftOptions): GateResult<DriftFigures> {
+  const th = {
+    slope_warn: options.slopeWarn ?? DRIFT_DEFAULTS.slopeWarn,
+    slope_fail: options.slopeFail ?? DRIFT_DEFAULTS.slopeFail,
+    excursion_warn: options.excursionWarn ?? DRIFT_DEFAULTS.excursionWarn,
+    excursion_fail: options.excursionFail ?? DRIFT_DEFAULTS.excursionFail,
+  };
+  const { points } = input;
+  const t = Float64Array.from(points, (p) => p.timeFs);
+  const e = Float64Array.from(points, (p) => p.totalEv / input.atoms);
+  const stats = seriesFigures(t, e);
+  const temps = points.map((p) => p.temperature).filter((x): x is number => x !== null && Number.isFinite(x));
+  const figures: DriftFigures = {
+    frames: input.frames,
+    atoms: input.atoms,
+    ...stats,
+    mean_temperature_K: temps.length ? temps.reduce((a, b) => a + b, 0) / temps.length : null,
+    frames_used: points.length,
+    first_bad_frame: input.firstBad ? input.firstBad.index : null,
+    duration_ps: points.length ? (t[t.length - 1] - t[0]) / 1000 : null,
+    initial_energy_eV_per_atom: points.length ? e[0] : null,
+    energy_source: input.energySource,
+    time_source: input.timeSource,
+    degrees_of_freedom: input.dof,
+    files: input.files,
+    thresholds: th,
+  };
+  const j = new Judgement();
+  if (input.frames === 0) j.fail('no frames to check');
+  if (input.firstBad)
+    j.fail(
+      `the run blew up: ${frameLabel(input.firstBad.index, input.files)} has ${input.firstBad.what}; figures cover the ${points.length} frame(s) before it`,
+    );
+  if (input.frames > 0 && points.length < 2) j.warn('fewer than two usable frames: no slope');
+  else if (stats.slope_meV_per_atom_per_ps === null && points.length >= 2) j.warn('all frames have the same time: no slope');
+  const slope = stats.slope_meV_per_atom_per_ps;
+  if (slope !== null)
+    j.limit(Math.abs(slope), th.slope_warn, th.slope_fail, (kind, lim) =>
+      `energy drifts by ${fmt(slope)} meV/atom/ps (${kind} limit ${fmt(lim)} in magnitude)`,
+    );
+  const exc = stats.max_excursion_meV_per_atom;
+  if (exc !== null && points.length >= 2)
+    j.limit(exc, th.excursion_warn, th.excursion_fail, (kind, lim) =>
+      `total energy strays up to ${fmt(exc)} meV/atom from its start (${kind} limit ${fmt(lim)})`,
+    );
+  if (j.verdict === 'pass' && slope !== null)
+    j.note(`energy drift ${fmt(slope)} meV/atom/ps over ${fmt(figures.duration_ps ?? 0)} ps is within ${fmt(th.slope_warn)}`);
+  return { gate: 'drift', verdict: j.verdict, reasons: j.reasons, figures };
+}
+
+/** Combine per-frame samples (global frame order) into the drift verdict. Throws GateInputError for unusable input. */
+export function summarizeDrift(samples: DriftSample[], options: DriftOptions = {}, files: FileSpan[] = []): GateResult<DriftFigures> {
+  const points: DriftPoint[] = [];
+  let firstBad: SeriesInput['firstBad'] = null;
+  const atoms = samples.length ? samples[0].atoms : 0;
+  const periodic = samples.length ? samples[0].periodic : false;
+  const dof = options.dof ?? defaultDof(atoms, periodic);
+  if (options.dof !== undefined && !(options.dof > 0)) throw new GateInputError(`degrees of freedom must be positive, found ${options.dof}`);
+  if (options.timestep !== undefined && !(options.timestep > 0)) throw new GateInputError(`time step must be positive, found ${options.timestep}`);
+  if (samples.length && atoms === 0) throw new GateInputError(`${frameLabel(0, files)} has no atoms`);
+  const hasTime = samples.length > 0 && samples[0].time !== null;
+  const hasStep = samples.length > 0 && samples[0].step !== null;
+  const timeKey = options.timeKey ?? 'time';
+  let source: DriftSample['source'] = null;
+  for (let k = 0; k < samples.length; k++) {
+    const s = samples[k];
+    if (s.bad !== null) {
+      firstBad = { index: k, what: s.bad };
+      break;
+    }
+    if (s.missing !== null) throw new GateInputError(`${frameLabel(k, files)}: ${s.missing}`);
+    if (s.atoms !== atoms)
+      throw new GateInputError(`${frameLabel(k, files)}: has ${s.atoms} atoms, frame 0 has ${atoms}; drift needs a fixed number of atoms`);
+    if (source === null) source = s.source;
+    else if (s.source !== source)
+      throw new GateInputError(`${frameLabel(k, files)}: energy from ${s.source}, earlier frames from ${source}; pick one with the energy source option`);
+    let time: number;
+    if (hasTime) {
+      if (s.time === null) throw new GateInputError(`${frameLabel(k, files)}: no '${timeKey}' in the frame info, though frame 0 has one`);
+      time = s.time;
+    } else if (options.timestep !== undefined) {
+      time = hasStep && s.step !== null ? s.step * options.timestep : k * options.timestep;
+    } else throw new GateInputError(`${frameLabel(k, files)}: no '${timeKey}' in the frame info; give the time step in fs`);
+    if (!Number.isFinite(time)) {
+      firstBad = { index: k, what: `a non-finite time (${time})` };
+      break;
+    }
+    const temperature = s.kinetic !== null ? (dof > 0 ? temperatureFromKinetic(s.kinetic, dof) : null) : s.temperature;
+    points.push({ timeFs: time, totalEv: s.total as number, temperature });
+  }
+  const timeSource = hasTime ? `info '${timeKey}'` : hasStep ? `info '${options.stepKey ?? 'step'}' x ${options.timestep} fs` : `frame index x ${options.timestep} fs`;
+  const anyVel = samples.some((s) => s.kinetic !== null);
+  return judge(
+    {
+      frames: samples.length,
+      atoms,
+      points,
+      firstBad,
+      energySource: source,
+      timeSource: samples.length ? timeSource : null,
+      dof: anyVel ? dof : null,
+      files,
+    },
+    options,
+  );
+}
+
+
+const TIME_NAMES = ['time', 'time_fs', 't', 'simulation_time'];
+const STEP_NAMES = ['step', 'steps', 'nstep', 'timestep', 'time_step'];
+const ENERGY_NAMES = ['total_energy', 'etot', 'toteng', 'etotal', 'e_tot', 'e_total', 'totalenergy', 'total'];
+const TEMPERATURE_NAMES = ['temperature', 'temp', 't_k', 'temp_k'];
+
+/** The drift verdict from thermo tables (rows in file order, tables concatenated). */
+export function summarizeThermo(tables: ThermoTable[], options: DriftOptions = {}): GateResult<DriftFigures> {
+  const atoms = options.atoms;
+  if (atoms === undefined) throw new GateInputError(`${tables[0]?.path ?? 'thermo table'}: a thermo table does not say how many atoms it describes; give the atom count (1 if the energy column is already per atom)`);
+  if (!(Number.isInteger(atoms) && atoms > 0)) throw new GateInputError(`atom count must be a positive integer, found ${atoms}`);
+  if (options.timestep !== undefined && !(options.timestep > 0)) throw new GateInputError(`time step must be positive, found ${options.timestep}`);
+  const scale = options.timeUnit === 'ps' ? 1000 : 1;
+  const points: DriftPoint[] = [];
+  const files: FileSpan[] = [];
+  let firstBad: SeriesInput['firstBad'] = null;
+  let energySource: string | null = null;
+  let timeSource: string | null = null;
+  let frames = 0;
+  for (const table of tables) {
+    const { header } = table;
+    const need = (name: string | undefined, candidates: string[], what: string, required: boolean): number => {
+      const k = findColumn(header, name, candidates);
+      if (k < 0 && (required || name !== undefined))
+        throw new GateInputError(
+          `${table.path}:${table.headerLine}: expected a ${what} column ${name !== undefined ? `named '${name}'` : `(one of ${candidates.join(', ')})`}, found columns ${header.join(', ')}`,
+        );
+      return k;
+    };
+    const ec = need(options.energyColumn, ENERGY_NAMES, 'total energy', true);
+    const tc = options.stepColumn !== undefined ? -1 : need(options.timeColumn, TIME_NAMES, 'time', false);
+    const sc = tc >= 0 ? -1 : need(options.stepColumn, STEP_NAMES, 'step', false);
+    const Tc = need(options.temperatureColumn, TEMPERATURE_NAMES, 'temperature', false);
+    if (tc < 0 && options.timestep === undefined)
+      throw new GateInputError(
+        `${table.path}:${table.headerLine}: no time column (one of ${TIME_NAMES.join(', ')}); give the time step in fs${sc >= 0 ? ` (time = ${header[sc]} x time step)` : ' (time = row index x time step)'}`,
+      );
+    const ts = options.timestep ?? 1;
+    const src = `column '${header[ec]}'`;
+    if (energySource === null) energySource = src;
+    timeSource ??= tc >= 0 ? `column '${header[tc]}'${scale === 1000 ? ' (ps)' : ''}` : sc >= 0 ? `column '${header[sc]}' x ${ts} fs` : `row index x ${ts} fs`;
+    const rows = table.lines.length;
+    files.push({ path: table.path, first_frame: frames, frames: rows });
+    for (let r = 0; r < rows && !firstBad; r++) {
+      const idx = frames + r;
+      const time = tc >= 0 ? table.values[tc][r] * scale : sc >= 0 ? table.values[sc][r] * ts : idx * ts;
+      const e = table.values[ec][r];
+      const temp = Tc >= 0 ? table.values[Tc][r] : null;
+      if (!Number.isFinite(e) || !Number.isFinite(time)) {
+        firstBad = { index: idx, what: `a non-finite ${Number.isFinite(e) ? 'time' : 'total energy'} (${table.path} line ${table.lines[r]})` };
+        break;
+      }
+      points.push({ timeFs: time, totalEv: e, temperature: temp });
+    }
+    frames += rows;
+  }
+  return judge(
+    { frames, atoms, points, firstBad, energySource, timeSource, dof: null, files },
+    options,
+  );
+}
+
+const TABLE_EXT = /\.(csv|tsv|dat|txt|log|thermo|out)(\.gz)?$/i;
+const XYZ_EXT = /\.(xyz|extxyz)(\.gz)?$/i;
+
+/** Is this path a thermo table (by extension, else by a first line that is not a lone atom count)? */
+export async function looksLikeTable(path: string): Promise<boolean> {
+  if (TABLE_EXT.test(path)) return true;
+  if (XYZ_EXT.test(path) || path.endsWith('.gz')) return false;
+  let fh;
+  try {
+    fh = await open(path, 'r');
+  } catch {
+    return false; // let the reader report it
+  }
+  try {
+    const buf = Buffer.alloc(256);
+    const { bytesRead } = await fh.read(buf, 0, 256, 0);
+    const first = buf.subarray(0, bytesRead).toString('utf8').split('\n').find((l) => l.trim() !== '') ?? '';
+    return !/^\s*\d+\s*$/.test(first);
+  } finally {
+    await fh.close();
+  }
+}
+
+/** The drift gate over extended XYZ files or thermo tables (concatenated in order as one run). */
+export async function checkDrift(paths: string[], options: DriftOptions = {}): Promise<GateResult<DriftFigures>> {
+  let table: boolean;
+  if (options.format === 'table') table = true;
+  else if (options.format === 'xyz') table = false;
+  else {
+    const kinds = await Promise.all(paths.map(looksLikeTable));
+    if (kinds.some((k) => k !== kinds[0]))
+      throw new GateInputError(`cannot mix thermo tables and extended XYZ files in one drift check (${paths.join(', ')})`);
+    table = kinds[0] ?? false;
+  }
+  if (table) {
+    const tables: ThermoTable[] = [];
+    for (const p of paths) tables.push(await readThermoTable(p));
+    return summarizeThermo(tables, options);
+  }
+  const o = options;
+  const frameOptions: DriftFrameOptions = {
+    totalKey: o.totalKey,
+    energyKey: o.energyKey,
+    velocitiesKey: o.velocitiesKey,
+    massesKey: o.massesKey,
+    forcesKey: o.forcesKey,
+    timeKey: o.timeKey,
+    stepKey: o.stepKey,
+    temperatureKey: o.temperatureKey,
+    source: o.source,
+  };
+  const { results, files } = await mapFiles<DriftSample>(
+    paths,
+    {
+      module: import.meta.url,
+      fn: 'driftFrame',
+      options: frameOptions,
+      columns: [o.velocitiesKey ?? 'velocities', o.massesKey ?? 'masses', o.forcesKey ?? 'forces'],
+    },
+    o.workers ?? defaultWorkers(),
+  );
+  return summarizeDrift(results, options, files);
+}

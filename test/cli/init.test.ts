@@ -1,0 +1,58 @@
+/**
+ * `ratchet init DIR` through the real CLI: writes a starter campaign that loads, and refuses (exit 2,
+ * nothing changed) to overwrite an existing one.
+ */
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { spawnSync } from 'node:child_process';
+import { mkdtempSync, readFileSync, rmSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { loadCampaign } from '../../src/campaign/load.js';
+import { STARTER_CAMPAIGN } from '../../src/campaign/starter.js';
+
+const ROOT = fileURLToPath(new URL('../../', import.meta.url));
+
+function cli(args: string[], cwd: string): { code: number | null; stdout: string; stderr: string } {
+  const r = spawnSync(process.execPath, ['--import', join(ROOT, 'node_modules/tsx/dist/esm/index.mjs'), join(ROOT, 'src/cli/index.ts'), ...args], {
+    cwd,
+    encoding: 'utf8',
+  });
+  return { code: r.status, stdout: r.stdout, stderr: r.stderr };
+}
+
+let dir: string;
+beforeAll(() => {
+  dir = mkdtempSync(join(tmpdir(), 'ratchet-cli-init-'));
+});
+afterAll(() => {
+  rmSync(dir, { recursive: true, force: true });
+});
+
+describe('ratchet init', () => {
+  it('writes campaign.yaml and start.xyz that load as written', async () => {
+    const r = cli(['init', 'proj'], dir);
+    expect(r.code).toBe(0);
+    expect(r.stderr).toBe('');
+    expect(r.stdout).toBe(
+      'wrote proj/campaign.yaml\nwrote proj/start.xyz\n' +
+        'next: edit the lines marked "edit" (species, start, commands, resources), then\n' +
+        '  ratchet schema proj/campaign.yaml     # check it\n' +
+        '  ratchet run proj/campaign.yaml --dry-run\n',
+    );
+    expect(readFileSync(join(dir, 'proj', 'campaign.yaml'), 'utf8')).toBe(STARTER_CAMPAIGN);
+    const loaded = await loadCampaign(join(dir, 'proj', 'campaign.yaml'));
+    expect(loaded.campaign.name).toBe('silicon-starter');
+  });
+
+  it('refuses to overwrite an existing campaign: exit 2, files unchanged', () => {
+    const before = readFileSync(join(dir, 'proj', 'campaign.yaml'), 'utf8');
+    const r = cli(['init', 'proj'], dir);
+    expect(r.code).toBe(2);
+    expect(r.stdout).toBe('');
+    expect(r.stderr).toBe(
+      `ratchet init: ${join(dir, 'proj', 'campaign.yaml')}: already exists; not overwriting it (choose another directory or move the file)\n`,
+    );
+    expect(readFileSync(join(dir, 'proj', 'campaign.yaml'), 'utf8')).toBe(before);
+  });
+});

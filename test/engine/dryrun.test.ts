@@ -1,0 +1,69 @@
+/**
+ * --dry-run: the next step's scripts rendered into a plan folder; no process started (the stage
+ * programs would append to runs.log and write outputs), nothing written to the ledger, no lock taken.
+ */
+import { execFileSync } from 'node:child_process';
+import { existsSync, readFileSync, readdirSync } from 'node:fs';
+import { join } from 'node:path';
+import { describe, expect, it } from 'vitest';
+import { runCampaign } from '../../src/engine/run.js';
+import { BufferOutput } from '../../src/engine/output.js';
+import { listFiles, makeCampaign } from './fixture.js';
+
+async function run(file: string, extra: { dryRun?: boolean; until?: string } = {}) {
+  const out = new BufferOutput();
+  const r = await runCampaign({ campaign: file, out, error: (m) => out.line(`error: ${m}`), ...extra });
+  return { ...r, text: out.text };
+}
+
+function planFolders(dir: string): string[] {
+  const p = join(dir, '.ratchet/plan');
+  return existsSync(p) ? readdirSync(p).sort() : [];
+}
+
+describe('dry run', () => {
+  it('on a fresh campaign: plans the sample stage on paper, creates no ledger', async () => {
+    const { dir, file } = makeCampaign();
+    const r = await run(file, { dryRun: true });
+    expect(r.exitCode).toBe(0);
+    expect(r.text).toContain('dry run: nothing is executed and nothing is written to the ledger');
+    expect(r.text).toContain('next step: plan and run r0/sample: 1 task');
+    expect(r.text).toContain('built-in sample policy');
+    expect(existsSync(join(dir, '.ratchet/ledger.jsonl'))).toBe(false);
+    expect(existsSync(join(dir, '.ratchet/lock'))).toBe(false);
+    expect(existsSync(join(dir, 'rounds'))).toBe(false);
+    const [plan] = planFolders(dir);
+    const tj = JSON.parse(readFileSync(join(dir, '.ratchet/plan', plan, 'rounds/r0/sample/0000/task.json'), 'utf8'));
+    expect(tj).toMatchObject({ task: 'r0/sample/0000', builtin: true, params: { kind: 'start' } });
+  });
+
+  it('mid-campaign: renders the label scripts, runs nothing, leaves the ledger byte for byte', async () => {
+    const { dir, file } = makeCampaign();
+    const first = await run(file, { until: 'label' });
+    expect(first.exitCode).toBe(0);
+    const ledger = readFileSync(join(dir, '.ratchet/ledger.jsonl'));
+    const filesBefore = listFiles(dir).filter((f) => !f.startsWith('.ratchet/plan/'));
+    const r = await run(file, { dryRun: true });
+    expect(r.exitCode).toBe(0);
+    expect(r.text).toContain('next step: plan and run r0/label: 3 tasks (6 frames in 3 task(s) of up to 2)');
+    expect(r.text).toContain('fake-stage.mjs label');
+    expect(r.text).toMatch(/r0\/label\/0002\s+rounds\/r0\/label\/0002\/run\.sh/);
+    expect(readFileSync(join(dir, '.ratchet/ledger.jsonl')).equals(ledger)).toBe(true);
+    // Nothing outside the plan folder changed: no task directory, no runs.log, no output.
+    expect(listFiles(dir).filter((f) => !f.startsWith('.ratchet/plan/'))).toEqual(filesBefore);
+    const plan = join(dir, '.ratchet/plan', planFolders(dir).at(-1)!);
+    for (const t of ['0000', '0001', '0002']) {
+      const script = join(plan, 'rounds/r0/label', t, 'run.sh');
+      execFileSync('bash', ['-n', script]); // syntax check only: throws on a syntax error
+      expect(readFileSync(script, 'utf8')).toContain(`export RATCHET_TASK_DIR=${join(dir, 'rounds/r0/label', t)}`);
+      expect(existsSync(join(plan, 'rounds/r0/label', t, 'frames.xyz'))).toBe(true);
+    }
+    // The real run afterwards plans the same tasks with the same scripts.
+    const real = await run(file, { until: 'train' });
+    expect(real.exitCode).toBe(0);
+    for (const t of ['0000', '0001', '0002']) {
+      expect(readFileSync(join(dir, 'rounds/r0/label', t, 'run.sh'), 'utf8')).toBe(readFileSync(join(plan, 'rounds/r0/label', t, 'run.sh'), 'utf8'));
+      expect(readFileSync(join(dir, 'rounds/r0/label', t, 'frames.xyz'), 'utf8')).toBe(readFileSync(join(plan, 'rounds/r0/label', t, 'frames.xyz'), 'utf8'));
+    }
+  }, 240_000);
+});
