@@ -1,7 +1,7 @@
 /**
  * Engine benchmark (invented data).
  *
- *   node --import tsx bench/engine.ts [--tasks 10000] [--events 100000] [--repeat 3]
+ *   node --import tsx bench/engine.ts [--tasks 10000] [--events 100000] [--repeat 3] [--dir /tmp]
  *
  * 1. Planning a stage of N tasks, end to end as `ratchet run` does it (planStage): a label stage whose
  *    sample output holds N frames (frames_per_task 1): read the frames, cut N chunks, hash them,
@@ -39,6 +39,10 @@ function arg(name: string, fallback: number): number {
 const N = arg('tasks', 10_000);
 const M = arg('events', 100_000);
 const REPEAT = arg('repeat', 3);
+const BASE = (() => {
+  const i = process.argv.indexOf('--dir');
+  return i >= 0 ? process.argv[i + 1] : tmpdir();
+})();
 
 const median = (xs: number[]) => [...xs].sort((a, b) => a - b)[Math.floor(xs.length / 2)];
 const best = (xs: number[]) => Math.min(...xs);
@@ -68,7 +72,7 @@ backend: {kind: local, jobs: 1}
 
 /** A campaign whose round-0 sample stage is done, holding N frames to label. */
 async function sampledCampaign(): Promise<{ dir: string; file: string }> {
-  const dir = mkdtempSync(join(tmpdir(), 'ratchet-bench-engine-'));
+  const dir = mkdtempSync(join(BASE, 'ratchet-bench-engine-'));
   writeFileSync(join(dir, 'start.xyz'), frames(N));
   const file = join(dir, 'campaign.yaml');
   writeFileSync(file, CAMPAIGN('my-labeler --input "$RATCHET_IN_FRAMES" --output "$RATCHET_OUT_LABELED"'));
@@ -151,7 +155,7 @@ function writeLedger(dir: string): number {
 }
 
 async function benchStatus(): Promise<void> {
-  const dir = mkdtempSync(join(tmpdir(), 'ratchet-bench-status-'));
+  const dir = mkdtempSync(join(BASE, 'ratchet-bench-status-'));
   writeFileSync(join(dir, 'start.xyz'), frames(1));
   writeFileSync(join(dir, 'campaign.yaml'), CAMPAIGN('true'));
   const events = writeLedger(dir);
@@ -179,6 +183,6 @@ async function benchStatus(): Promise<void> {
   rmSync(dir, { recursive: true, force: true });
 }
 
-console.log(`ratchet engine bench: node ${process.version}, ${cpus().length} cpus (${cpus()[0]?.model ?? '?'}), load average ${loadavg().map((x) => x.toFixed(1)).join(' ')}`);
+console.log(`ratchet engine bench (files in ${BASE}): node ${process.version}, ${cpus().length} cpus (${cpus()[0]?.model ?? '?'}), load average ${loadavg().map((x) => x.toFixed(1)).join(' ')}`);
 await benchPlan();
 await benchStatus();

@@ -9,11 +9,12 @@
  *
  *   npm run build && node bench/neighbours.mjs
  *   node --import tsx bench/neighbours.mjs --src            (straight from src/, no build)
- *   options: --sizes 1000,10000,100000,1000000 --density 0.1 --cutoff 6 --repeat 3 --seconds 1.5
+ *   options: --sizes 1000,10000,100000,1000000 --density 0.1 --cutoff 6 --repeat 3 --seconds 1
  *
- * Each figure is the median of the per-call CPU times (user + system of this process, which stays meaningful on a
- * shared machine) of --repeat timing runs; a timing run loops calls until it has used --seconds of CPU (at least one
- * call), so small systems are timed over many calls. Wall-clock time is printed beside it.
+ * All systems are built first and then timed round-robin for --repeat rounds (so a change of machine load hits every
+ * size alike). In a round, each system's forEachPair is called until it has used --seconds of CPU (at least one call),
+ * so small systems are timed over many calls. Figures are CPU time (user + system of this process, meaningful on a
+ * shared machine) per call: the median over rounds, and the best round. Wall-clock time is printed beside it.
  */
 import { existsSync } from 'node:fs';
 import { cpus, loadavg } from 'node:os';
@@ -27,7 +28,7 @@ const SIZES = String(opt('sizes', '1000,10000,100000,1000000')).split(',').map(N
 const DENSITY = Number(opt('density', 0.1));
 const CUTOFF = Number(opt('cutoff', 6));
 const REPEAT = Number(opt('repeat', 3));
-const SECONDS = Number(opt('seconds', 1.5));
+const SECONDS = Number(opt('seconds', 1));
 const useSrc = args.includes('--src') || !existsSync(new URL('../dist/atoms/neighbours.js', import.meta.url));
 const base = useSrc ? '../src/' : '../dist/';
 const ext = useSrc ? '.ts' : '.js';
@@ -123,6 +124,9 @@ console.log(`neighbour search: density ${DENSITY} atoms/Å³, cutoff ${CUTOFF} �
   const sys = { positions: toCartesian(randomNonOverlapping(3000, L, 1.5, 99), [L, 0, 0, 0, L, 0, 0, 0, L]), cell: Float64Array.of(L, 0, 0, 0, L, 0, 0, 0, L), pbc };
   for (let k = 0; k < 30; k++) timeCall(sys);
 }
+// Build every system first, then time them round-robin (--repeat rounds), so that changes in machine load hit all sizes
+// alike; each figure is the median (and best) over rounds of the CPU time per call.
+const systems = [];
 for (const n of SIZES) {
   const L = Math.cbrt(n / DENSITY);
   const tg = performance.now();
@@ -133,30 +137,32 @@ for (const n of SIZES) {
   const s = Math.cbrt((L * L * L) / cellVolume(tri0));
   const tri = tri0.map((x) => x * s);
   for (const [shape, cell] of [['cubic', cube], ['triclinic', tri]]) {
-    const system = { positions: toCartesian(frac, cell), cell, pbc };
-    const perCall = [];
-    const wallPerCall = [];
-    let pairs = 0;
-    for (let rep = 0; rep < REPEAT; rep++) {
-      const c0 = cpuMs(), t0 = performance.now();
-      let calls = 0;
-      do {
-        pairs = timeCall(system).pairs;
-        calls++;
-      } while (cpuMs() - c0 < SECONDS * 1000);
-      perCall.push((cpuMs() - c0) / calls);
-      wallPerCall.push((performance.now() - t0) / calls);
-    }
-    const ms = median(perCall);
-    const best = Math.min(...perCall);
-    const wall = median(wallPerCall);
-    rows.push({ n, shape, ms, best, wall, usPerAtom: (1000 * ms) / n, bestUsPerAtom: (1000 * best) / n, pairsPerAtom: pairs / n, nsPerPair: (1e6 * ms) / pairs, genMs });
-    const last = rows[rows.length - 1];
-    console.log(
-      `${String(n).padStart(8)} ${shape.padEnd(9)} ${ms.toFixed(2).padStart(10)} ms CPU/frame ${last.usPerAtom.toFixed(3).padStart(7)} µs/atom (best ${last.bestUsPerAtom.toFixed(3)}) ` +
-        `${last.pairsPerAtom.toFixed(1).padStart(6)} pairs/atom ${last.nsPerPair.toFixed(1).padStart(6)} ns/pair  (wall ${wall.toFixed(2)} ms/frame; positions generated in ${genMs.toFixed(0)} ms)`,
-    );
+    systems.push({ n, shape, genMs, system: { positions: toCartesian(frac, cell), cell, pbc }, cpu: [], wall: [], pairs: 0 });
   }
+}
+for (let rep = 0; rep < REPEAT; rep++) {
+  for (const row of systems) {
+    const c0 = cpuMs(), t0 = performance.now();
+    let calls = 0;
+    do {
+      row.pairs = timeCall(row.system).pairs;
+      calls++;
+    } while (cpuMs() - c0 < SECONDS * 1000);
+    row.cpu.push((cpuMs() - c0) / calls);
+    row.wall.push((performance.now() - t0) / calls);
+  }
+}
+for (const row of systems) {
+  const { n, shape, genMs, pairs } = row;
+  const ms = median(row.cpu);
+  const best = Math.min(...row.cpu);
+  const wall = median(row.wall);
+  rows.push({ n, shape, ms, best, wall, usPerAtom: (1000 * ms) / n, bestUsPerAtom: (1000 * best) / n, pairsPerAtom: pairs / n, nsPerPair: (1e6 * ms) / pairs, genMs });
+  const last = rows[rows.length - 1];
+  console.log(
+    `${String(n).padStart(8)} ${shape.padEnd(9)} ${ms.toFixed(2).padStart(10)} ms CPU/frame ${last.usPerAtom.toFixed(3).padStart(7)} µs/atom (best ${last.bestUsPerAtom.toFixed(3)}) ` +
+      `${last.pairsPerAtom.toFixed(1).padStart(6)} pairs/atom ${last.nsPerPair.toFixed(1).padStart(6)} ns/pair  (wall ${wall.toFixed(2)} ms/frame; positions generated in ${genMs.toFixed(0)} ms)`,
+  );
 }
 for (const shape of ['cubic', 'triclinic']) {
   const r = rows.filter((x) => x.shape === shape);

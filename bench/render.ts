@@ -8,9 +8,10 @@
  * Phases reported (best of --repeat runs, each into a fresh folder):
  *   render         TaskSpec + renderScript only (no I/O)
  *   render+write   render + writeTaskFilesSync (mkdir, 2 temporary files, 2 renames per task)
+ *   floor          plain mkdir + 2 writeFileSync of the same bytes, no rendering (what the file system costs)
  *   render+write (async, 64 at once)   the same through fs/promises
  */
-import { mkdtempSync, rmSync } from 'node:fs';
+import { mkdirSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { cpus, loadavg, tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { performance } from 'node:perf_hooks';
@@ -90,6 +91,19 @@ await phase('render+write (sync)', (c) => {
   for (let i = 0; i < N; i++) {
     const { task, json } = plan(c, i);
     writeTaskFilesSync(task.dir, renderScript(task, [], templates), json);
+  }
+});
+// Reference floor, not ratchet code: the same folders and bytes with plain mkdir + writeFileSync
+// (no rendering, no temporary file + rename). What the file system alone costs here.
+const sample = renderScript(plan('/x', 0).task, [], templates);
+const sampleJson = `${JSON.stringify(plan('/x', 0).json, null, 2)}\n`;
+await phase('floor: mkdir + 2 plain writes', (c) => {
+  mkdirSync(join(c, 'rounds', 'r0', 'label'), { recursive: true });
+  for (let i = 0; i < N; i++) {
+    const dir = join(c, 'rounds', 'r0', 'label', String(i).padStart(5, '0'));
+    mkdirSync(dir);
+    writeFileSync(join(dir, 'run.sh'), sample);
+    writeFileSync(join(dir, 'task.json'), sampleJson);
   }
 });
 await phase('render+write (async, 64 at once)', async (c) => {

@@ -42,7 +42,7 @@ const spec: ProgramSpec = {
     { name: 'anchor_scale', type: 'number', default: 0.05, help: 'std. dev. of the random anchor weights (eV); 0 = plain ridge' },
     { name: 'sigma_energy', type: 'number', default: 0.001, help: 'energy scale in the loss (eV/atom)' },
     { name: 'sigma_force', type: 'number', default: 0.01, help: 'force scale in the loss (eV/Å)' },
-    { name: 'training_set_sha256', type: 'string', help: 'hash of the training set, recorded in the model (computed from the files when absent)' },
+    { name: 'training_set_sha256', type: 'string', help: "hash of the training set, recorded in the model (default: task.json input_artifacts.training_set, else the file's sha256)" },
   ],
 };
 
@@ -73,11 +73,13 @@ await runProgram(spec, async (r) => {
   });
   const hashes = await Promise.all(files.map(async (f) => ({ file: basename(f), sha256: await sha256File(f) })));
   const given = r.params.training_set_sha256;
+  // the engine's artifact id of the training set, when task.json names it ("sha256:<hex>")
+  const artifact = /^sha256:([0-9a-f]{64})$/.exec(r.inputArtifacts.training_set ?? '')?.[1];
   fit.model.training = {
     member: member ?? null,
     seed: r.seed,
     task: r.task ?? null,
-    training_set_sha256: typeof given === 'string' ? given : hashes.length === 1 ? hashes[0].sha256 : null,
+    training_set_sha256: typeof given === 'string' ? given : artifact ?? (hashes.length === 1 ? hashes[0].sha256 : null),
     inputs: hashes,
     frames: data.length,
     frames_used: fit.framesUsed,

@@ -37,7 +37,11 @@ export interface AtomsGeometry {
 export type PairVisitor = (i: number, j: number, d: number, dx: number, dy: number, dz: number) => void;
 
 export interface NeighbourOptions {
-  /** Bin thickness as a fraction of the cutoff (default 0.5). Smaller bins test fewer far pairs but cost more bookkeeping. */
+  /**
+   * Bin thickness as a fraction of the cutoff. Smaller bins test fewer far pairs but cost more bookkeeping per bin.
+   * Default: 1 (a 27-bin stencil) when a cutoff-sized bin would hold fewer than ~20 atoms, else 0.5 (dense systems or
+   * long cutoffs), the faster choice in bench/neighbours.mjs.
+   */
   binFraction?: number;
 }
 
@@ -84,7 +88,7 @@ function checkInput(system: AtomsGeometry, cutoff: number): number {
 const MAX_BINS_PER_ATOM = 4;
 const MIN_BIN_CAP = 4096;
 
-function buildGrid(system: AtomsGeometry, cutoff: number, binFraction: number): Grid {
+function buildGrid(system: AtomsGeometry, cutoff: number, binFractionOption: number | undefined): Grid {
   const n = checkInput(system, cutoff);
   const pbc = system.pbc;
   let h: Float64Array;
@@ -115,6 +119,16 @@ function buildGrid(system: AtomsGeometry, cutoff: number, binFraction: number): 
   }
 
   // Extent of each axis in fractional units and in perpendicular Å.
+  // Occupancy of a cutoff-sized bin decides the default bin size (see NeighbourOptions.binFraction).
+  let binFraction = binFractionOption ?? 1;
+  if (binFractionOption === undefined) {
+    let cells = 1;
+    for (let k = 0; k < 3; k++) {
+      const t = per[k] ? unitWidth[k] : n > 0 ? (smax[k] - smin[k]) * unitWidth[k] : 0;
+      cells *= Math.max(t / cutoff, 1);
+    }
+    if (n / cells >= 20) binFraction = 0.5;
+  }
   const binTarget = cutoff * binFraction;
   const origin = [0, 0, 0];
   const range = [1, 1, 1];
@@ -131,7 +145,8 @@ function buildGrid(system: AtomsGeometry, cutoff: number, binFraction: number): 
     }
   }
   const nb: [number, number, number] = [0, 0, 0];
-  for (let k = 0; k < 3; k++) nb[k] = Math.max(1, Math.floor(thick[k] / binTarget));
+  // (bins a hair thicker than the target, so that a cell exactly k cutoffs wide does not need a wider stencil)
+  for (let k = 0; k < 3; k++) nb[k] = Math.max(1, Math.floor(thick[k] / (binTarget * (1 + 1e-6))));
   const m: [number, number, number] = [0, 0, 0];
   const lo: [number, number, number] = [0, 0, 0];
   const hi: [number, number, number] = [0, 0, 0];
@@ -350,8 +365,8 @@ export function boxMinNorm2(G: ArrayLike<number>, O: readonly [number, number, n
  * cannot support.
  */
 export function forEachPair(system: AtomsGeometry, cutoff: number, visit: PairVisitor, options: NeighbourOptions = {}): void {
-  const binFraction = options.binFraction ?? 0.5;
-  if (!(binFraction > 0) || !Number.isFinite(binFraction)) {
+  const binFraction = options.binFraction;
+  if (binFraction !== undefined && (!(binFraction > 0) || !Number.isFinite(binFraction))) {
     throw new NeighbourError(`binFraction must be a positive finite number, got ${binFraction}`);
   }
   const grid = buildGrid(system, cutoff, binFraction);

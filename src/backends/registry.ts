@@ -5,6 +5,11 @@
 import { closest } from 'fastest-levenshtein';
 import type { Backend } from './backend.js';
 import { LocalBackend } from './local.js';
+import type { ClusterBackendOptions } from './cluster.js';
+import { SlurmBackend } from './slurm.js';
+import { PbsBackend } from './pbs.js';
+import { LsfBackend } from './lsf.js';
+import { SgeBackend } from './sge.js';
 
 /** Options every factory receives; each backend reads the ones it knows. */
 export interface BackendOptions {
@@ -50,3 +55,30 @@ export function getBackend(name: string, options: BackendOptions = {}): Backend 
 }
 
 registerBackend('local', (o) => new LocalBackend({ jobs: o.jobs, templatesDir: o.templatesDir, killGraceMs: o.killGraceMs as number | undefined, enforceWalltime: o.enforceWalltime as boolean | undefined }));
+
+/**
+ * Cluster backend options from BackendOptions: the campaign's `backend` keys as written in the file
+ * (max_array_size, array_throttle, poll_interval, submit_retries, submit_timeout) or their camelCase
+ * forms; `jobs` is the array throttle when array_throttle is not given.
+ */
+export function clusterOptions(o: BackendOptions): ClusterBackendOptions {
+  const num = (...keys: string[]): number | undefined => {
+    for (const k of keys) if (typeof o[k] === 'number') return o[k] as number;
+    return undefined;
+  };
+  return {
+    templatesDir: o.templatesDir,
+    maxArraySize: num('max_array_size', 'maxArraySize'),
+    arrayThrottle: num('array_throttle', 'arrayThrottle', 'jobs'),
+    pollIntervalS: num('poll_interval', 'pollIntervalS'),
+    submitRetries: num('submit_retries', 'submitRetries'),
+    submitTimeoutS: num('submit_timeout', 'submitTimeoutS'),
+    exitGraceS: num('exit_grace', 'exitGraceS'),
+    ...(typeof o.user === 'string' ? { user: o.user } : {}),
+  };
+}
+
+registerBackend('slurm', (o) => new SlurmBackend({ ...clusterOptions(o), ...(typeof o.jobcompFile === 'string' ? { jobcompFile: o.jobcompFile } : {}) }));
+registerBackend('pbs', (o) => new PbsBackend(clusterOptions(o)));
+registerBackend('lsf', (o) => new LsfBackend(clusterOptions(o)));
+registerBackend('sge', (o) => new SgeBackend({ ...clusterOptions(o), ...(typeof o.sge_pe === 'string' ? { pe: o.sge_pe } : {}) }));

@@ -44,6 +44,11 @@ export async function advance(engine: Engine, opts: AdvanceOptions = {}): Promis
       return { kind: 'finished', state: s.ended.state, round: s.ended.round, reasons: s.ended.reasons, holding: s.ended.holding };
     }
     const p = frontier(s);
+    // A finished round is judged (converged, exhausted or go on) before anything else happens.
+    if (p.stage === 'sample' && p.round > 0 && !s.judged.has(p.round - 1)) {
+      await judgeConvergence(engine, p.round - 1);
+      continue;
+    }
     if (p.round >= engine.view.maxRounds) {
       const ev: CampaignEndedEvent = {
         type: 'campaign_ended',
@@ -134,16 +139,21 @@ export async function collectAndGate(engine: Engine, round: number, stage: Stage
       : await STAGE_DEFS[stage].gate(engine.stageContext(round));
   killPoint('gated');
   await engine.append({ type: 'stage_gated', round, stage, ...verdict });
-  const first = verdict.reasons[0] ?? verdict.gates.flatMap((g) => g.reasons).find((r) => r.length > 0);
+  const first = verdict.reasons[0] ?? verdict.summary ?? verdict.gates.flatMap((g) => g.reasons).find((r) => r.length > 0);
   const more = verdict.reasons.length > 1 ? ` (+${verdict.reasons.length - 1} more)` : '';
   const summary = first ? `: ${first.split('\n')[0]}${more}` : '';
   engine.out.line(`${pad(stageId(round, stage))} ${engine.out.word(verdict.verdict)}${summary}`);
-  if (stage === 'simulate' && verdict.verdict !== 'fail') await judgeConvergence(engine, round, verdict);
   return verdict;
 }
 
-async function judgeConvergence(engine: Engine, round: number, verdict: StageVerdict): Promise<void> {
-  const figs = (verdict.figures?.conditions ?? {}) as Record<string, ConditionFigures>;
+/**
+ * Judge a round whose simulate stage passed, from the verdicts in the ledger (so it can be done again
+ * after a crash with the same answer): converged, exhausted, or go on. Writes one event.
+ */
+async function judgeConvergence(engine: Engine, round: number): Promise<void> {
+  killPoint('judging');
+  const sim = stageRecord(engine.state, round, 'simulate')?.gate;
+  const figs = (sim?.figures?.conditions ?? {}) as Record<string, ConditionFigures>;
   const conditions: ConditionBands[] = engine.view.conditions.map((c) => {
     const f = figs[c.name];
     return { condition: c.name, frames: f?.frames ?? 0, confident: f?.confident ?? 0, informative: f?.informative ?? 0, runaway: f?.runaway ?? 0 };
@@ -161,5 +171,7 @@ async function judgeConvergence(engine: Engine, round: number, verdict: StageVer
   engine.out.line(`${pad(`r${round}`)} confident fraction: ${fractions} (target ${engine.view.target})`);
   if (conv.state !== 'continue') {
     await engine.append({ type: 'campaign_ended', state: conv.state, round, reasons: conv.reasons, holding: conv.holding });
+  } else {
+    await engine.append({ type: 'round_judged', round, state: 'continue', reasons: conv.reasons, holding: conv.holding });
   }
 }

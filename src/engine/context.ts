@@ -8,7 +8,7 @@ import { copyFileSync, mkdirSync, renameSync } from 'node:fs';
 import { basename, isAbsolute, join, relative, resolve, sep } from 'node:path';
 import type { Backend } from '../backends/backend.js';
 import { artifactEvent, artifactId, campaignRelative, hashArtifact } from '../ledger/artifacts.js';
-import type { Journal, NewEvent, LedgerEvent } from '../ledger/journal.js';
+import type { NewEvent, LedgerEvent } from '../ledger/journal.js';
 import { VERSION } from '../version.js';
 import type { EngineEvent } from './events.js';
 import type { Stage } from './ids.js';

@@ -62,6 +62,10 @@ export async function dryRun(o: DryRunOptions): Promise<RunResult> {
     return { exitCode: 0 };
   }
   const p = frontier(state);
+  if (p.stage === 'sample' && p.round > 0 && !state.judged.has(p.round - 1)) {
+    out.line(`next step: judge round ${p.round - 1} (converged, out of rounds, or on to round ${p.round}); no task runs`);
+    return { exitCode: 0 };
+  }
   if (p.round >= view.maxRounds) {
     out.line(`the round limit (${view.maxRounds}) is reached; a run would record the campaign as exhausted`);
     return { exitCode: 0 };

@@ -97,6 +97,8 @@ export interface StageGatedEvent {
   gates: GateRecord[];
   /** Stage-level figures (e.g. frames selected, confident fraction per condition). */
   figures?: Record<string, unknown>;
+  /** One line that sums a passing stage up. */
+  summary?: string;
 }
 
 /** `ratchet retry` on a gate-blocked stage with no failed task: judge it again. */
@@ -113,6 +115,18 @@ export interface CampaignEndedEvent {
   round: number;
   reasons: string[];
   /** Conditions that held the campaign back (exhausted). */
+  holding: string[];
+}
+
+/**
+ * A round's end was judged and the campaign goes on (not converged, rounds left). A round that ends
+ * the campaign gets 'campaign_ended' instead: one event either way, so the judgement is never half-written.
+ */
+export interface RoundJudgedEvent {
+  type: 'round_judged';
+  round: number;
+  state: 'continue';
+  reasons: string[];
   holding: string[];
 }
 
@@ -149,6 +163,7 @@ export type EngineEvent =
   | StageGatedEvent
   | StageRegateEvent
   | CampaignEndedEvent
+  | RoundJudgedEvent
   | CampaignResumedEvent
   | ArtifactEvent;
 

@@ -237,8 +237,9 @@ export async function waitForStage(engine: Engine, round: number, stage: Stage, 
     if (left === 0) break;
     if (engine.interrupted) return { outstanding: left };
     if (!follow && engine.backend.drain === undefined) return { outstanding: left };
-    // Poll less often when many tasks run: about one exit-record read per task per 100 ms at most.
-    const interval = Math.min(5000, Math.max(100, left / 10));
+    // Poll less often when many tasks run: about one exit-record read per task per 100 ms at most;
+    // a cluster (no drain) at most every 2 s (the backend itself spaces out its scheduler calls).
+    const interval = Math.min(5000, Math.max(engine.backend.drain ? 100 : 2000, left / 10));
     await Promise.race([sleep(interval), engine.whenInterrupted()]);
   }
   engine.out.endProgress(label);

@@ -90,7 +90,10 @@ export async function prepare(
   }
   let backend: Backend;
   try {
-    backend = getBackend(opts.backend ?? view.backend.kind, { jobs: jobs ?? view.backend.jobs, templatesDir: view.backend.templateDir });
+    // Every key of the campaign's backend section goes to the backend (cluster backends read theirs);
+    // --jobs and the resolved template folder win.
+    const { kind: _kind, template_dir: _t, ...settings } = view.campaign.backend;
+    backend = getBackend(opts.backend ?? view.backend.kind, { ...settings, jobs: jobs ?? view.backend.jobs, templatesDir: view.backend.templateDir });
   } catch (err) {
     const code = exitCodeOf(err);
     if (code !== undefined) {

@@ -5,7 +5,7 @@
  */
 import type { LedgerEvent } from '../ledger/journal.js';
 import type { TaskState } from '../backends/backend.js';
-import { STAGES, type Stage, isStage, stageId } from './ids.js';
+import { STAGES, type Stage, isStage } from './ids.js';
 import type {
   ArtifactEvent,
   CampaignEndedEvent,
@@ -62,13 +62,15 @@ export interface CampaignState {
   /** The latest artifact registered at each path (relative to the campaign dir). */
   byPath: Map<string, ArtifactEvent & { seq: number }>;
   ended?: CampaignEndedEvent & { at: string };
+  /** Rounds whose end was judged (round_judged, or campaign_ended). */
+  judged: Set<number>;
   lastRun?: { started: RunStartedEvent & { seq: number; at: string }; ended?: RunEndedEvent & { at: string } };
   events: number;
   lastSeq: number;
 }
 
 export function emptyState(): CampaignState {
-  return { rounds: [], tasks: new Map(), artifacts: new Map(), byPath: new Map(), events: 0, lastSeq: 0 };
+  return { rounds: [], tasks: new Map(), artifacts: new Map(), byPath: new Map(), judged: new Set(), events: 0, lastSeq: 0 };
 }
 
 function roundRecord(s: CampaignState, round: number): RoundRecord {
@@ -150,6 +152,10 @@ export function applyEvent(s: CampaignState, e: LedgerEvent): CampaignState {
     }
     case 'campaign_ended':
       s.ended = e as unknown as CampaignEndedEvent & { at: string };
+      s.judged.add(e.round as number);
+      break;
+    case 'round_judged':
+      s.judged.add(e.round as number);
       break;
     case 'campaign_resumed':
       s.ended = undefined;
@@ -281,13 +287,4 @@ export function frontier(s: CampaignState): { round: number; stage: Stage } {
     }
   }
   return { round: s.rounds.length, stage: 'sample' };
-}
-
-/** The latest artifact registered at a path (relative to the campaign dir). */
-export function artifactAt(s: CampaignState, relPath: string): (ArtifactEvent & { seq: number }) | undefined {
-  return s.byPath.get(relPath);
-}
-
-export function describeStage(round: number, stage: Stage): string {
-  return stageId(round, stage);
 }

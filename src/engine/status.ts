@@ -28,6 +28,7 @@ export interface StageStatus {
   reasons?: string[];
   figures?: Record<string, unknown>;
   gates?: { gate: string; verdict: string; task?: string; reasons: string[] }[];
+  summary?: string;
 }
 
 export interface RoundStatus {
@@ -75,6 +76,7 @@ export function buildStatus(view: CampaignView, state: CampaignState, campaignAr
         s.verdict = st.gate.verdict;
         s.reasons = st.gate.reasons;
         if (st.gate.figures) s.figures = st.gate.figures;
+        if (st.gate.summary) s.summary = st.gate.summary;
         s.gates = st.gate.gates.map((g) => ({ gate: g.gate, verdict: g.verdict, ...(g.task ? { task: g.task } : {}), reasons: g.reasons }));
       }
       stages.push(s);
@@ -192,7 +194,7 @@ export function formatStatus(r: StatusReport, out: Output): void {
   for (const rr of r.rounds) {
     for (const s of rr.stages) {
       if (!s.verdict) continue;
-      const first = s.reasons?.length ? s.reasons[0] : (s.gates ?? []).flatMap((g) => g.reasons).find(Boolean) ?? '';
+      const first = s.reasons?.length ? s.reasons[0] : s.summary ?? (s.gates ?? []).flatMap((g) => g.reasons).find(Boolean) ?? '';
       verdicts.push(`  ${pad(stageId(rr.round, s.stage), 14)}${out.word(s.verdict)}${' '.repeat(6 - s.verdict.length)}${oneLine(first)}`);
     }
   }
@@ -231,7 +233,12 @@ export function formatStatus(r: StatusReport, out: Output): void {
     const s = rr?.stages.find((k) => k.stage === r.at!.stage);
     if (r.blocking) {
       out.line(`${out.word('blocked')}: ${r.blocking.stage} (${r.blocking.why === 'tasks' ? 'failed tasks' : 'its gate failed'})`);
-      for (const reason of r.blocking.reasons) out.line(`  - ${oneLine(reason, 300)}`);
+      for (const reason of r.blocking.reasons) {
+        const lines = reason.split('\n');
+        out.line(`  - ${oneLine(lines[0], 300)}`);
+        for (const more of lines.slice(1, 4)) out.line(`      ${oneLine(more, 300)}`);
+        if (lines.length > 4) out.line(`      (${lines.length - 4} more line(s))`);
+      }
       for (const n of r.blocking.next) out.line(n);
     } else if (s && (s.phase === 'running' || s.phase === 'ready')) {
       const done = Object.entries(s.counts).filter(([k]) => k !== 'planned' && k !== 'submitted').reduce((n, [, v]) => n + (v ?? 0), 0);

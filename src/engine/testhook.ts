@@ -7,12 +7,13 @@
  * kills the process with SIGKILL the k-th time (default 1) it reaches the named point. Points:
  *   append          right after a ledger event is on disk (k counts this process's events)
  *   planned         after a stage's task directories are written, before its 'stage_planned' event
- *   spawned         a task has been started but its 'task_submitted' event is not written yet
- *   running         right after a 'task_submitted' event, while tasks run
+ *   submitted       a task's 'task_submitted' event is written, the task not yet started
+ *   running         after the first poll of a stage's running tasks (they run on, orphaned)
  *   hashed          an output has been hashed, its 'artifact' event not yet written
  *   merged          a stage's merged output is written, not yet registered
  *   archived        a retried task's old records were moved aside, its 'task_retry' event not yet written
  *   gated           the gate has been computed, its verdict not yet written
+ *   judging         a round's simulate stage has its verdict, the round is not yet judged (converged or not)
  * Unset (always, outside tests): every call is a no-op.
  */
 

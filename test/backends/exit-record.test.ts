@@ -1,9 +1,11 @@
 import { existsSync, mkdirSync, readdirSync, readFileSync, statSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { describe, expect, it } from 'vitest';
+import { afterAll, describe, expect, it } from 'vitest';
 import { elapsedSeconds, parseExitRecord, readExitRecord, readExitRecordSync, tailLines } from '../../src/backends/exit-record.js';
 import { archiveAttempt, TaskFinishedError, writeTaskFiles, writeTaskFilesSync } from '../../src/backends/task-files.js';
-import { tempDir } from './helpers.js';
+import { removeTempDirs, tempDir } from './helpers.js';
+
+afterAll(removeTempDirs);
 
 const GOOD = '{"exit_code":3,"start":"2024-05-01T10:00:00Z","end":"2024-05-01T11:30:00Z","host":"node1"}\n';
 

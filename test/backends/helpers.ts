@@ -1,12 +1,21 @@
 import { spawn } from 'node:child_process';
-import { mkdirSync, mkdtempSync, readFileSync, realpathSync } from 'node:fs';
+import { mkdirSync, mkdtempSync, readFileSync, realpathSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import type { TaskSpec } from '../../src/backends/backend.js';
 
-/** A fresh, real (symlink-free) temporary folder. */
+const made: string[] = [];
+
+/** A fresh, real (symlink-free) temporary folder, removed by removeTempDirs(). */
 export function tempDir(prefix = 'ratchet-backends-'): string {
-  return realpathSync(mkdtempSync(join(tmpdir(), prefix)));
+  const dir = realpathSync(mkdtempSync(join(tmpdir(), prefix)));
+  made.push(dir);
+  return dir;
+}
+
+/** Remove the folders tempDir() made (call from afterAll). */
+export function removeTempDirs(): void {
+  for (const dir of made.splice(0)) rmSync(dir, { recursive: true, force: true });
 }
 
 /** A task spec with a created task directory under root. */

@@ -2,7 +2,7 @@ import { spawnSync } from 'node:child_process';
 import { existsSync, mkdirSync, readFileSync, readdirSync, writeFileSync } from 'node:fs';
 import { hostname } from 'node:os';
 import { join } from 'node:path';
-import { describe, expect, it } from 'vitest';
+import { afterAll, describe, expect, it } from 'vitest';
 import { readExitRecordSync } from '../../src/backends/exit-record.js';
 import { renderScript, RenderError } from '../../src/backends/render.js';
 import { shellQuote } from '../../src/backends/shell.js';
@@ -10,7 +10,9 @@ import { writeTaskFilesSync } from '../../src/backends/task-files.js';
 import { clearTemplateCache, loadTemplates, TemplateError } from '../../src/backends/templates.js';
 import type { TaskSpec } from '../../src/backends/backend.js';
 import { HOSTILE } from './corpus.js';
-import { alive, makeTask, runScript, tempDir, waitFor } from './helpers.js';
+import { alive, makeTask, runScript, removeTempDirs, tempDir, waitFor } from './helpers.js';
+
+afterAll(removeTempDirs);
 
 function write(task: TaskSpec, header: string[] = []): string {
   const script = renderScript(task, header);
@@ -240,7 +242,7 @@ describe('templates', () => {
     writeFileSync(join(dir, 'd', 'local.sh'), '# no shebang\n');
     expect(() => loadTemplates('local', join(dir, 'd'))).toThrow(/local.sh:1: a header template must start with a #! line/);
     expect(() => loadTemplates('local', join(dir, 'missing'))).toThrow(/does not exist or is not a folder/);
-    expect(() => loadTemplates('slurm')).toThrow(/no template slurm.sh/);
+    expect(() => loadTemplates('no-such-backend')).toThrow(/no template no-such-backend.sh/);
   });
 
   it('the built-in scripts pass bash -n for every hostile value as task id, dir, env and command', () => {

@@ -1,10 +1,12 @@
 import { execFileSync } from 'node:child_process';
-import { mkdtempSync, readdirSync } from 'node:fs';
+import { readdirSync } from 'node:fs';
 import { tmpdir } from 'node:os';
-import { join } from 'node:path';
-import { describe, expect, it } from 'vitest';
+import { afterAll, describe, expect, it } from 'vitest';
 import { isEnvName, sanitizeJobName, shellQuote, ShellValueError, toEnvName } from '../../src/backends/shell.js';
 import { HOSTILE } from './corpus.js';
+import { removeTempDirs, tempDir } from './helpers.js';
+
+afterAll(removeTempDirs);
 
 /** What bash makes of a list of words: runs `printf '%s\0' WORD...` and splits the output on NUL. */
 function bashWords(words: string[], cwd: string): string[] {
@@ -16,7 +18,7 @@ describe('shellQuote', () => {
   // Reference: GNU bash itself (the shell that runs the scripts) parses each quoted word back to the
   // original value. Quoting rules: GNU Bash Reference Manual, 3.1.2.2 Single Quotes, 3.1.2.4 ANSI-C Quoting.
   it('round-trips every hostile value through bash unchanged, evaluating nothing', () => {
-    const cwd = mkdtempSync(join(tmpdir(), 'ratchet-quote-'));
+    const cwd = tempDir('ratchet-quote-');
     expect(bashWords(HOSTILE.map(shellQuote), cwd)).toEqual(HOSTILE);
     expect(readdirSync(cwd)).toEqual([]); // no $(touch ...) or `touch ...` ran
   });

@@ -3,7 +3,8 @@
  * (right after ledger writes, after a stage's task directories are written but before it is recorded as
  * planned, after a task is recorded as submitted but before it starts, while tasks run, after an output
  * is hashed but before it is registered, after merged files are written, after a failed attempt's
- * records are moved aside, after a gate is computed but before its verdict is written) and run again
+ * records are moved aside, after a gate is computed but before its verdict is written, after a round's
+ * last verdict but before the round is judged) and run again
  * each time. The killing uses the engine's test hook RATCHET_TEST_KILL_AT (src/engine/testhook.ts).
  * The campaign must end with the same artifacts (same paths, same hashes) as an uninterrupted run,
  * no finished task run twice (runs.log counts), and no ledger line lost.
@@ -50,6 +51,8 @@ const KILLS = [
   'append:3', 'submitted:1', 'hashed:1', 'gated:1', 'planned:1', 'submitted:2', 'running:1', 'append:2',
   'merged:1', 'hashed:1', 'running:1', 'archived:1', 'append:6', 'planned:1', 'running:1', 'gated:1',
   'submitted:3', 'running:1', 'hashed:1', 'append:4', 'planned:1', 'running:1', 'merged:1', 'append:9',
+  // Between a round's last verdict and its judgement (converged or not), twice in a row.
+  'judging:1', 'judging:1',
 ];
 
 describe('crash and resume', () => {
@@ -93,8 +96,8 @@ describe('crash and resume', () => {
     }
     expect(killed, `killed at: ${killedAt.join(' ')}`).toBeGreaterThanOrEqual(20);
     // Different kinds of points were met.
-    for (const p of ['append', 'submitted', 'running', 'hashed', 'planned', 'merged', 'archived', 'gated']) {
-      expect(killedAt.some((k) => k.startsWith(`${p}:`)), p).toBe(true);
+    for (const p of ['append', 'submitted', 'running', 'hashed', 'planned', 'merged', 'archived', 'gated', 'judging']) {
+      expect(killedAt.some((k) => k.startsWith(`${p}:`)), `${p} (killed at: ${killedAt.join(" ")})`).toBe(true);
     }
 
     const last = cli({});
@@ -112,8 +115,12 @@ describe('crash and resume', () => {
     expect(counts).toEqual(runsLogs(ref.dir));
     for (const [path, n] of counts) expect(n, path).toBe(path === 'rounds/r0/train/0001/runs.log' ? 2 : 1);
 
-    // Every attempt was submitted once and ended once; nothing is left running.
+    // Every artifact was registered once: never twice, whatever collect was cut short.
     const ev = ledgerEvents(dir);
+    const regs = ev.filter((e) => e.type === 'artifact').map((e) => `${e.path} ${e.id}`);
+    expect(regs).toHaveLength(expected.size);
+    expect(new Set(regs).size).toBe(regs.length);
+    // Every attempt was submitted once and ended once; nothing is left running.
     const keys = (type: string) => ev.filter((e) => e.type === type).map((e) => `${e.task}#${e.attempt}`);
     expect(new Set(keys('task_submitted')).size).toBe(keys('task_submitted').length);
     expect(new Set(keys('task_ended')).size).toBe(keys('task_ended').length);

@@ -57,6 +57,22 @@ describe('bad input', () => {
   });
 });
 
+describe('starting structures outside the campaign directory', () => {
+  it('are copied into inputs/ and registered there, so every artifact lies inside the campaign', async () => {
+    const { dir, file } = makeCampaign();
+    const outside = join(dir, '..', `outside-${process.pid}.xyz`);
+    writeFileSync(outside, readFileSync(join(dir, 'start.xyz')));
+    writeFileSync(file, readFileSync(file, 'utf8').replace('start: start.xyz', `start: ${JSON.stringify(outside)}`));
+    const r = await run(file, { until: 'label' });
+    expect(r.errors).toBe('');
+    expect(r.exitCode).toBe(0);
+    const starts = readFileSync(join(dir, '.ratchet/ledger.jsonl'), 'utf8').trim().split('\n').map((l) => JSON.parse(l)).filter((e) => e.role === 'start');
+    expect(starts).toHaveLength(1);
+    expect(starts[0].path).toMatch(new RegExp(`^inputs/[0-9a-f]{12}-outside-${process.pid}\\.xyz$`));
+    expect(readFileSync(join(dir, starts[0].path), 'utf8')).toBe(readFileSync(outside, 'utf8'));
+  }, 120_000);
+});
+
 describe('another run at the same time', () => {
   it('is refused (exit 1) while a live process holds the lock, and records nothing', async () => {
     const { dir, file } = makeCampaign();

@@ -87,6 +87,7 @@ describe('folding the ledger into the campaign state', () => {
   it('ends and resumes a campaign', () => {
     const evs = [ev({ type: 'campaign_ended', state: 'exhausted', round: 2, reasons: [], holding: ['hot'] })];
     expect(foldEvents(evs).ended?.state).toBe('exhausted');
+    expect(foldEvents(evs).judged.has(2)).toBe(true);
     evs.push(ev({ type: 'campaign_resumed', reason: 'rounds.max is now 5' }));
     expect(foldEvents(evs).ended).toBeUndefined();
   });

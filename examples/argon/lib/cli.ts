@@ -3,7 +3,8 @@
  *
  * A program finds its inputs, outputs and parameters, in this order of precedence:
  *   1. command-line flags (--in, --out, --<param-name> ...), for use by hand and in tests;
- *   2. environment variables set by the engine: RATCHET_IN_<NAME>, RATCHET_OUT_<NAME>, RATCHET_SEED;
+ *   2. environment variables set by the engine: RATCHET_IN_<NAME>, RATCHET_OUT_<NAME>, RATCHET_PARAM_<NAME>,
+ *      RATCHET_SEED (the engine sets them to the same values as task.json);
  *   3. task.json (path from --task or RATCHET_TASK_JSON): { inputs: {name: absPath}, outputs: {name: path
  *      relative to the task directory}, params: {...}, seed };
  *   4. the program's defaults.
@@ -69,6 +70,8 @@ export interface TaskFile {
   inputs?: Record<string, unknown>;
   outputs?: Record<string, unknown>;
   params?: Record<string, unknown>;
+  /** The engine's artifact ids of the inputs ("sha256:<hex>"), by input name. */
+  input_artifacts?: Record<string, unknown>;
 }
 
 export interface Resolved {
@@ -78,6 +81,8 @@ export interface Resolved {
   outputs: Record<string, string | undefined>;
   params: Record<string, number | string | boolean | string[] | undefined>;
   seed: number;
+  /** Artifact ids of the inputs by name, when task.json gives them (input_artifacts). */
+  inputArtifacts: Record<string, string>;
   /** The task id (RATCHET_TASK or task.json task), when run by the engine. */
   task?: string;
   taskDir?: string;
@@ -230,7 +235,7 @@ export async function resolveTask(spec: ProgramSpec, argv: string[], env: NodeJS
     outputs[io.name] = path;
   }
 
-  const taskParams = task.params ?? {};
+  const taskParams: Record<string, unknown> = { ...(task.params ?? {}), ...fromEnv('RATCHET_PARAM_') };
   const params: Resolved['params'] = {};
   for (const p of spec.params) {
     const names = [p.name, ...(p.aliases ?? [])];
@@ -242,7 +247,8 @@ export async function resolveTask(spec: ProgramSpec, argv: string[], env: NodeJS
       params[p.name] = p.multiple ? (flag as string[]).map((v) => String(coerce(p, v, `--${f}`))) : coerce(p, flag, `--${f}`);
     } else if (key !== undefined) {
       const v = taskParams[key];
-      params[p.name] = p.multiple && Array.isArray(v) ? v.map((x, i) => String(coerce(p, x, `${taskJson}: key params.${key}[${i}]`))) : coerce(p, v, `${taskJson}: key params.${key}`);
+      const where = task.params?.[key] === v ? `${taskJson}: key params.${key}` : `RATCHET_PARAM_${envName(key)}`;
+      params[p.name] = p.multiple && Array.isArray(v) ? v.map((x, i) => String(coerce(p, x, `${where}[${i}]`))) : coerce(p, v, where);
     } else params[p.name] = p.default;
   }
 
@@ -255,7 +261,10 @@ export async function resolveTask(spec: ProgramSpec, argv: string[], env: NodeJS
     seed = s;
   }
   const taskId = env.RATCHET_TASK ?? (typeof task.task === 'string' ? task.task : undefined);
-  return { inputs, outputs, params, seed, task: taskId, taskDir, taskJson: taskJson ? resolve(taskJson) : undefined };
+  const inputArtifacts: Record<string, string> = {};
+  const ia = task.input_artifacts;
+  if (ia && typeof ia === 'object' && !Array.isArray(ia)) for (const [k, v] of Object.entries(ia)) if (typeof v === 'string') inputArtifacts[k] = v;
+  return { inputs, outputs, params, seed, inputArtifacts, task: taskId, taskDir, taskJson: taskJson ? resolve(taskJson) : undefined };
 }
 
 /** Common error names that mean bad input (exit 2). */

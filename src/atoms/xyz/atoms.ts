@@ -67,64 +67,66 @@ export function parseAtoms(
   lastLineOpen = -1,
 ): AtomBlock {
   const ncols = layout.ncols;
-  const kinds = new Uint8Array(ncols);
-  const dst = new Int32Array(ncols);
-  const stride = new Int32Array(ncols);
-  const comp = new Int32Array(ncols);
-  const reals: Float64Array[] = [];
-  const bools: Uint8Array[] = [];
-  const strs: string[][] = [];
   const species: string[] = new Array(natoms);
   const positions = new Float64Array(3 * natoms);
   const arrays = new Map<string, AtomColumn>();
   let z: Float64Array | null = null;
+  // The line as a list of operations, one per property up to the last one parsed (neighbouring skipped
+  // properties merged): few dispatches per line, and each destination array looked up once per property.
+  const opKind: number[] = [];
+  const opWidth: number[] = [];
+  const opFirst: number[] = [];
+  const opReal: (Float64Array | null)[] = [];
+  const opBool: (Uint8Array | null)[] = [];
+  const opStr: (string[] | null)[] = [];
+  const push = (kind: number, width: number, first: number, r: Float64Array | null, b: Uint8Array | null, t: string[] | null) => {
+    const last = opKind.length - 1;
+    if (kind === SKIP && last >= 0 && opKind[last] === SKIP) {
+      opWidth[last] += width;
+      return;
+    }
+    opKind.push(kind);
+    opWidth.push(width);
+    opFirst.push(first);
+    opReal.push(r);
+    opBool.push(b);
+    opStr.push(t);
+  };
   for (let k = 0; k < layout.props.length; k++) {
     const prop = layout.props[k];
     const isSpecies = k === layout.species;
     const isPos = k === layout.pos;
     const needZ = k === layout.z && layout.species < 0;
     const keep = !isSpecies && !isPos && (wanted === null || wanted.has(prop.name));
-    if (!isSpecies && !isPos && !keep && !needZ) continue;
-    let kind = SKIP;
-    let d = 0;
     if (isSpecies) {
-      kind = SPECIES;
+      push(SPECIES, 1, prop.first, null, null, null);
     } else if (isPos) {
-      kind = REAL;
-      d = reals.length;
-      reals.push(positions);
+      push(REAL, 3, prop.first, positions, null, null);
+    } else if (!keep && !needZ) {
+      push(SKIP, prop.width, prop.first, null, null, null);
     } else if (prop.type === 'R' || prop.type === 'I') {
-      kind = prop.type === 'R' ? REAL : INT;
       const values = new Float64Array(natoms * prop.width);
-      d = reals.length;
-      reals.push(values);
+      push(prop.type === 'R' ? REAL : INT, prop.width, prop.first, values, null, null);
       if (keep) arrays.set(prop.name, { type: prop.type, width: prop.width, values });
       if (needZ) z = values;
     } else if (prop.type === 'L') {
-      kind = BOOL;
       const values = new Uint8Array(natoms * prop.width);
-      d = bools.length;
-      bools.push(values);
+      push(BOOL, prop.width, prop.first, null, values, null);
       arrays.set(prop.name, { type: 'L', width: prop.width, values });
     } else {
-      kind = STR;
       const values: string[] = new Array(natoms * prop.width);
-      d = strs.length;
-      strs.push(values);
+      push(STR, prop.width, prop.first, null, null, values);
       arrays.set(prop.name, { type: 'S', width: prop.width, values });
     }
-    for (let c = 0; c < prop.width; c++) {
-      kinds[prop.first + c] = kind;
-      dst[prop.first + c] = d;
-      stride[prop.first + c] = prop.width;
-      comp[prop.first + c] = c;
-    }
   }
-
-  // Columns after the last one to be parsed are only counted (to check the line's column count).
-  let last = -1;
-  for (let j = 0; j < ncols; j++) if (kinds[j] !== SKIP) last = j;
-  const parsed = last + 1;
+  // Trailing skipped columns are only counted (to check the line's column count).
+  if (opKind[opKind.length - 1] === SKIP) {
+    opKind.pop();
+    opWidth.pop();
+    opFirst.pop();
+  }
+  const nops = opKind.length;
+  const parsed = nops === 0 ? 0 : opFirst[nops - 1] + opWidth[nops - 1];
 
   // A 32-bit view of the bytes (word k holds bytes shift + 4k .. shift + 4k + 3) for counting skipped columns.
   const shift = (4 - (buf.byteOffset & 3)) & 3;
@@ -134,42 +136,68 @@ export function parseAtoms(
   for (let a = 0; a < natoms; a++) {
     const lineStart = p;
     const e = indexOfNewline(buf, p);
-    for (let j = 0; j < parsed; j++) {
-      while (p < e && buf[p] <= 32) p++;
-      if (p >= e) throw columnCountError(buf, lineStart, e, layout, where, a, lastLineOpen);
-      switch (kinds[j]) {
+    for (let o = 0; o < nops; o++) {
+      const w = opWidth[o];
+      switch (opKind[o]) {
         case SKIP:
-          while (p < e && buf[p] > 32) p++;
+          for (let k = 0; k < w; k++) {
+            while (p < e && buf[p] <= 32) p++;
+            if (p >= e) throw columnCountError(buf, lineStart, e, layout, where, a, lastLineOpen);
+            while (p < e && buf[p] > 32) p++;
+          }
           break;
         case REAL: {
-          const v = fastReal(buf, p);
-          if (!cursor.ok) throw valueError(buf, p, layout, j, where, a, 'a real number');
-          reals[dst[j]][a * stride[j] + comp[j]] = v;
-          p = cursor.end;
+          const arr = opReal[o]!;
+          let idx = a * w;
+          for (let k = 0; k < w; k++) {
+            while (p < e && buf[p] <= 32) p++;
+            if (p >= e) throw columnCountError(buf, lineStart, e, layout, where, a, lastLineOpen);
+            const v = fastReal(buf, p);
+            if (!cursor.ok) throw valueError(buf, p, layout, opFirst[o] + k, where, a, 'a real number');
+            arr[idx++] = v;
+            p = cursor.end;
+          }
           break;
         }
         case INT: {
-          const v = parseIntAt(buf, p);
-          if (!cursor.ok) throw valueError(buf, p, layout, j, where, a, 'an integer');
-          reals[dst[j]][a * stride[j] + comp[j]] = v;
-          p = cursor.end;
+          const arr = opReal[o]!;
+          for (let k = 0; k < w; k++) {
+            while (p < e && buf[p] <= 32) p++;
+            if (p >= e) throw columnCountError(buf, lineStart, e, layout, where, a, lastLineOpen);
+            const v = parseIntAt(buf, p);
+            if (!cursor.ok) throw valueError(buf, p, layout, opFirst[o] + k, where, a, 'an integer');
+            arr[a * w + k] = v;
+            p = cursor.end;
+          }
           break;
         }
         case BOOL: {
-          const s = p;
-          while (p < e && buf[p] > 32) p++;
-          const b = isTrue(buf, s, p);
-          if (b < 0) throw valueError(buf, s, layout, j, where, a, 'a logical (T, F, True, False, true, false)');
-          bools[dst[j]][a * stride[j] + comp[j]] = b;
+          const arr = opBool[o]!;
+          for (let k = 0; k < w; k++) {
+            while (p < e && buf[p] <= 32) p++;
+            if (p >= e) throw columnCountError(buf, lineStart, e, layout, where, a, lastLineOpen);
+            const s = p;
+            while (p < e && buf[p] > 32) p++;
+            const b = isTrue(buf, s, p);
+            if (b < 0) throw valueError(buf, s, layout, opFirst[o] + k, where, a, 'a logical (T, F, True, False, true, false)');
+            arr[a * w + k] = b;
+          }
           break;
         }
         case STR: {
-          const s = p;
-          while (p < e && buf[p] > 32) p++;
-          strs[dst[j]][a * stride[j] + comp[j]] = Buffer.from(buf.buffer, buf.byteOffset + s, p - s).toString('utf8');
+          const arr = opStr[o]!;
+          for (let k = 0; k < w; k++) {
+            while (p < e && buf[p] <= 32) p++;
+            if (p >= e) throw columnCountError(buf, lineStart, e, layout, where, a, lastLineOpen);
+            const s = p;
+            while (p < e && buf[p] > 32) p++;
+            arr[a * w + k] = Buffer.from(buf.buffer, buf.byteOffset + s, p - s).toString('utf8');
+          }
           break;
         }
         default: {
+          while (p < e && buf[p] <= 32) p++;
+          if (p >= e) throw columnCountError(buf, lineStart, e, layout, where, a, lastLineOpen);
           const s = p;
           while (p < e && buf[p] > 32) p++;
           species[a] = speciesAt(buf, s, p);
@@ -227,9 +255,9 @@ const LITTLE_ENDIAN = new Uint8Array(Uint32Array.of(1).buffer)[0] === 1;
  * continues at p (p is at a separator, a token start or e). Four bytes at a time: in each byte, the high
  * bit of ((b & 0x7f) + 0x5f) | b is set exactly when b > 32 (b is part of a token); a token starts where
  * that bit is set and the previous byte's is not. (SWAR, "SIMD within a register": H. S. Warren,
- * Hacker's Delight, 2nd ed., 2012, ch. 6 on searching words for bytes.)
+ * Hacker's Delight, 2nd ed., 2012, ch. 6 "Searching Words"; cited from memory.)
  */
-function countTokens(buf: Uint8Array, words: Int32Array | null, shift: number, p: number, e: number): number {
+export function countTokens(buf: Uint8Array, words: Int32Array | null, shift: number, p: number, e: number): number {
   let n = 0;
   let prev = 0;
   if (words === null || e - p < 16) {

@@ -73,6 +73,9 @@ export const simulate: StageDef = {
         confident_fraction: bands && frames > 0 ? bands.confident / frames : null,
       };
     }
-    return combine(gates, { conditions });
+    const summary = Object.entries(conditions)
+      .map(([name, f]) => `${name}: ${f.frames} frames, ${f.confident} confident, ${f.informative} informative, ${f.runaway} runaway`)
+      .join('; ');
+    return { ...combine(gates, { conditions }), summary };
   },
 };

@@ -74,6 +74,8 @@ export interface StageVerdict {
   reasons: string[];
   gates: GateRecord[];
   figures?: Record<string, unknown>;
+  /** One line for a passing stage (what `run` and `status` print), e.g. the bands per condition. */
+  summary?: string;
 }
 
 export interface StageDef {

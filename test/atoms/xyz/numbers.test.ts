@@ -151,3 +151,30 @@ describe('the reader parses atom-line numbers exactly as Number()', () => {
     }
   });
 });
+
+describe('countTokens (word-at-a-time column counting for skipped columns)', () => {
+  it('agrees with a byte-by-byte count on random lines at every alignment', async () => {
+    const { countTokens } = await import('../../../src/atoms/xyz/atoms.js');
+    const r = rng(17);
+    const alphabet = [' ', ' ', ' ', '\t', '\r', 'a', '1', '.', '-', 'é', '\u0000', '~', '!'];
+    for (let k = 0; k < 4000; k++) {
+      const len = Math.floor(r() * 120);
+      const text = Array.from({ length: len }, () => alphabet[Math.floor(r() * alphabet.length)]).join('');
+      const bytes = Buffer.from(text, 'utf8');
+      const pad = Math.floor(r() * 7);
+      const ab = new ArrayBuffer(pad + bytes.length + 8);
+      const buf = new Uint8Array(ab, pad, bytes.length + 1);
+      buf.set(bytes);
+      buf[bytes.length] = 10;
+      const shift = (4 - (buf.byteOffset & 3)) & 3;
+      const words = buf.length >= shift + 4 ? new Int32Array(ab, buf.byteOffset + shift, (buf.length - shift) >> 2) : null;
+      // start anywhere at a separator or token start
+      let p = Math.floor(r() * (bytes.length + 1));
+      while (p > 0 && p < bytes.length && buf[p - 1] > 32 && buf[p] > 32) p--;
+      let want = 0;
+      for (let i = p; i < bytes.length; i++) if (buf[i] > 32 && (i === p || buf[i - 1] <= 32)) want++;
+      const got = countTokens(buf, words, shift, p, bytes.length);
+      if (got !== want) expect.fail(`${JSON.stringify(text)} from ${p} (offset ${pad}): counted ${got}, expected ${want}`);
+    }
+  });
+});

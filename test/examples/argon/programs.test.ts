@@ -9,6 +9,7 @@ import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import type { Frame } from '../../../src/atoms/frame.js';
 import { readFrames } from '../../../src/atoms/xyz/reader.js';
+import { checkDrift, checkErrors } from '../../../src/gates/index.js';
 import { writeFrames } from '../../../src/atoms/xyz/writer.js';
 import { ljFccLatticeConstant } from '../../../examples/argon/lib/lattice.js';
 import { argonLj, ljEnergyForces } from '../../../examples/argon/lib/lj.js';
@@ -56,7 +57,7 @@ beforeAll(async () => {
 });
 
 describe('argon stage programs', () => {
-  it('label -> train x2 -> md -> predict through task.json and RATCHET_* variables', async () => {
+  it('label -> train x2 -> md -> validate (errors, nve) through task.json and RATCHET_* variables', async () => {
     // label: task.json names the input and output; the output path is relative to the task directory
     const labelDir = join(work, 'rounds/0/label/0000');
     const labelTask = await task(labelDir, { campaign: 'argon', round: 0, stage: 'label', task: 'r0/label/0000', seed: 1, inputs: { frames: unlabeled }, params: {}, outputs: { labeled: 'labeled.xyz' } });
@@ -77,14 +78,20 @@ describe('argon stage programs', () => {
     const models: string[] = [];
     for (const m of [0, 1]) {
       const dir = join(work, `rounds/0/train/000${m}`);
-      const t = await task(dir, { round: 0, stage: 'train', task: `r0/train/000${m}`, seed: 10 + m, inputs: { training_set: labeledPath }, params: { basis_count: 10 }, outputs: { model: 'model.json' } });
+      // member 1's task.json names the engine's artifact id of the training set; member 0's does not (file hash)
+      const fake = 'ab'.repeat(32);
+      const t = await task(dir, {
+        round: 0, stage: 'train', task: `r0/train/000${m}`, seed: 10 + m,
+        inputs: { training_set: labeledPath }, params: { basis_count: 10 }, outputs: { model: 'model.json' },
+        ...(m === 1 ? { input_artifacts: { training_set: `sha256:${fake}` } } : {}),
+      });
       const r = run('train.ts', [], { RATCHET_TASK_JSON: t });
       expect(r.stderr).toBe('');
       expect(r.code).toBe(0);
       const model = JSON.parse(await readFile(join(dir, 'model.json'), 'utf8'));
       expect(model.training.member).toBe(m);
       expect(model.training.seed).toBe(10 + m);
-      expect(model.training.training_set_sha256).toBe(hash);
+      expect(model.training.training_set_sha256).toBe(m === 1 ? fake : hash);
       expect(model.pair_weights['Ar-Ar']).toHaveLength(10);
       models.push(join(dir, 'model.json'));
     }
@@ -112,14 +119,41 @@ describe('argon stage programs', () => {
     const mean = ((f.get('forces_0')!.values as Float64Array)[5] + (f.get('forces_1')!.values as Float64Array)[5]) / 2;
     expect((f.get('forces')!.values as Float64Array)[5]).toBeCloseTo(mean, 12);
 
-    // predict, by hand with flags, on the labeled frames
-    const pred = run('predict.ts', ['--in', labeledPath, '--model', models[0], '--model', models[1], '--out', join(work, 'pred.xyz')]);
-    expect(pred.code).toBe(0);
-    const p = await frames(join(work, 'pred.xyz'));
+    // validate, kind errors, from the environment alone (no task.json): predictions on held-out frames
+    const valDir = join(work, 'rounds/0/validate/errors');
+    await mkdir(valDir, { recursive: true });
+    const val = run('validate.ts', [], {
+      RATCHET_PARAM_KIND: 'errors',
+      RATCHET_IN_REFERENCE: labeledPath,
+      RATCHET_IN_MODEL_0: models[0],
+      RATCHET_IN_MODEL_1: models[1],
+      RATCHET_OUT_PREDICTIONS: join(valDir, 'predictions.xyz'),
+    });
+    expect(val.stderr).toBe('');
+    expect(val.code).toBe(0);
+    const p = await frames(join(valDir, 'predictions.xyz'));
     expect(p).toHaveLength(10);
     expect(Array.from(p[4].positions)).toEqual(Array.from(labeled[4].positions));
     const e0 = p[4].info.get('energy_0') as number, e1 = p[4].info.get('energy_1') as number;
     expect(p[4].info.get('energy')).toBeCloseTo((e0 + e1) / 2, 12);
+    const errors = await checkErrors(labeledPath, join(valDir, 'predictions.xyz'));
+    expect(errors.figures.frames).toBe(10);
+
+    // validate, kind nve, through task.json as the engine plans it: a constant-energy run the drift gate accepts
+    const nveDir = join(work, 'rounds/0/validate/nve-cold');
+    const nt = await task(nveDir, {
+      stage: 'validate', task: 'r0/validate/nve-cold', seed: 3,
+      inputs: { model_0: models[0], model_1: models[1], start: unlabeled },
+      params: { kind: 'nve', condition: 'cold', temperature: 30, steps: 200, timestep: 5, write_every: 20, committee: 2, start_frame: 0 },
+      outputs: { trajectory: 'trajectory.xyz' },
+    });
+    const nve = run('validate.ts', [], { RATCHET_TASK_JSON: nt });
+    expect(nve.stderr).toBe('');
+    expect(nve.code).toBe(0);
+    expect(nve.stdout).toMatch(/^md: nve 30 K, 200 steps of 5 fs with 2 models: completed/);
+    const drift = await checkDrift([join(nveDir, 'trajectory.xyz')], { workers: 1 });
+    expect(drift.verdict).toBe('pass');
+    expect(drift.figures.frames).toBe(11);
   });
 
   it('md stops early at a contact and still writes the trajectory', async () => {
@@ -173,9 +207,11 @@ describe('argon stage programs', () => {
     if (flagged === 'help') throw new Error('unexpected');
     expect(flagged.params.steps).toBe(11);
     expect(flagged.inputs.frames).toEqual([resolve('here.xyz')]);
-    const env = await resolveTask(spec, [], { RATCHET_TASK_JSON: t, RATCHET_IN_FRAMES: '/env/f.xyz' });
+    const env = await resolveTask(spec, [], { RATCHET_TASK_JSON: t, RATCHET_IN_FRAMES: '/env/f.xyz', RATCHET_PARAM_KIND: 'b' });
     if (env === 'help') throw new Error('unexpected');
     expect(env.inputs.frames).toEqual(['/env/f.xyz']);
+    expect(env.params.kind).toBe('b');
+    await expect(resolveTask(spec, [], { RATCHET_TASK_JSON: t, RATCHET_PARAM_KIND: 'z' })).rejects.toThrow(/RATCHET_PARAM_KIND: expected one of a, b, found "z"/);
 
     const bad = await task(join(work, 'contract-bad'), { inputs: { frames: '/f', models: '/m' }, params: { steps: 'many', kind: 'c' }, outputs: { out: 'o' } });
     await expect(resolveTask(spec, [], { RATCHET_TASK_JSON: bad })).rejects.toThrow(/task\.json: key params\.steps: expected a number, found "many"/);
