@@ -89,8 +89,22 @@ async function engineFor(dir: string, file: string): Promise<{ engine: Engine; j
 }
 
 async function benchPlan(): Promise<void> {
-  const phases: Record<string, number[]> = { 'plan (read frames, chunk, hash)': [], 'materialize (task.json + render run.sh)': [], 'write task dirs': [], 'register chunks in the ledger': [], 'planStage end to end': [] };
+  const phases: Record<string, number[]> = { 'baseline: mkdir + 3 small files, no ratchet': [], 'plan (read frames, chunk, hash)': [], 'materialize (task.json + render run.sh)': [], 'write task dirs': [], 'register chunks in the ledger': [], 'planStage end to end': [] };
   for (let rep = 0; rep < REPEAT; rep++) {
+    {
+      // What the file system alone costs for N task directories of three files (the floor for writing).
+      const dir = mkdtempSync(join(BASE, 'ratchet-bench-floor-'));
+      const t = performance.now();
+      for (let k = 0; k < N; k++) {
+        const d = join(dir, String(k).padStart(5, '0'));
+        mkdirSync(d);
+        writeFileSync(join(d, 'frames.xyz'), 'x'.repeat(120));
+        writeFileSync(join(d, 'task.json'), 'x'.repeat(600));
+        writeFileSync(join(d, 'run.sh'), 'x'.repeat(2800), { mode: 0o755 });
+      }
+      phases['baseline: mkdir + 3 small files, no ratchet'].push(performance.now() - t);
+      rmSync(dir, { recursive: true, force: true });
+    }
     {
       const { dir, file } = await sampledCampaign();
       const { engine, journal } = await engineFor(dir, file);

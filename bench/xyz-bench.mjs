@@ -49,18 +49,23 @@ const hasTime = existsSync('/usr/bin/time');
 function timeCommand(cmd, argv) {
   const walls = [];
   const rss = [];
+  const cpu = [];
   let stdout = '';
   for (let k = 0; k < repeat; k++) {
     const t0 = performance.now();
     const r = hasTime
-      ? spawnSync('/usr/bin/time', ['-f', '%M', cmd, ...argv], { encoding: 'utf8', maxBuffer: 1 << 28 })
+      ? spawnSync('/usr/bin/time', ['-f', '%M %U %S', cmd, ...argv], { encoding: 'utf8', maxBuffer: 1 << 28 })
       : spawnSync(cmd, argv, { encoding: 'utf8', maxBuffer: 1 << 28 });
     walls.push((performance.now() - t0) / 1000);
-    if (hasTime) rss.push(Number(r.stderr.trim().split('\n').pop()) / 1024);
+    if (hasTime) {
+      const [m, u, sy] = r.stderr.trim().split('\n').pop().split(' ').map(Number);
+      rss.push(m / 1024);
+      cpu.push(u + sy);
+    }
     stdout = r.stdout;
     if (r.status !== 0 && r.status !== 1) throw new Error(`${cmd} ${argv.join(' ')} failed (${r.status}): ${r.stderr}`);
   }
-  return { wall_s: median(walls), walls, max_rss_mb: rss.length ? Math.max(...rss) : null, stdout };
+  return { wall_s: median(walls), walls, cpu_s: cpu.length ? median(cpu) : null, max_rss_mb: rss.length ? Math.max(...rss) : null, stdout };
 }
 
 function child(kind, file) {
@@ -86,8 +91,8 @@ const cases = [
   ['read-committee', 'readFrames, forces_0..3'],
   ['read-all', 'readFrames, all columns'],
   ['map1-committee', 'mapFrames, 1 thread, forces_0..3'],
-  ['map2-pos', 'mapFrames, 2 workers, positions only'],
-  ['map2-committee', 'mapFrames, 2 workers, forces_0..3'],
+  ['map2-pos', 'mapFrames, workers: 2 (caller + 1 worker thread), positions only'],
+  ['map2-committee', 'mapFrames, workers: 2 (caller + 1 worker thread), forces_0..3'],
 ];
 for (const [kind, what] of cases) {
   const r = child(kind, big);
@@ -103,7 +108,7 @@ for (const gate of ['contacts', 'committee']) {
     continue;
   }
   const r = timeCommand(process.execPath, [cli, 'check', gate, big, '--json']);
-  rows.push({ what: `\`ratchet check ${gate}\``, command: `node dist/cli/index.js check ${gate} ${big} --json`, wall_s: r.wall_s, walls: r.walls, max_rss_mb: r.max_rss_mb, rate: MB / r.wall_s, verdict: (() => { try { return JSON.parse(r.stdout).verdict; } catch { return undefined; } })() });
+  rows.push({ what: `\`ratchet check ${gate}\``, command: `node dist/cli/index.js check ${gate} ${big} --json`, wall_s: r.wall_s, walls: r.walls, cpu_s: r.cpu_s, max_rss_mb: r.max_rss_mb, rate: MB / r.wall_s, verdict: (() => { try { return JSON.parse(r.stdout).verdict; } catch { return undefined; } })() });
 }
 
 const result = {
@@ -122,9 +127,9 @@ const result = {
 writeFileSync(`${out}/xyz-bench.json`, JSON.stringify(result, null, 2));
 const f = (x, d = 2) => (x === null || x === undefined ? '—' : x.toFixed(d));
 console.log(`file: ${big} (${f(MB, 1)} MB, ${result.frames} frames), node ${process.version}, ${result.cpus} cpus, load ${loadavg().map((x) => x.toFixed(1)).join(' ')}`);
-console.log('| what | wall s (median) | MB/s | ratio to wc -l | peak RSS MB |');
-console.log('|---|---|---|---|---|');
-for (const r of result.rows) console.log(`| ${r.what} | ${f(r.wall_s, 3)} | ${f(r.rate, 0)} | ${r.ratio_to_wc === null ? '—' : `${(100 * r.ratio_to_wc).toFixed(1)}%`} | ${f(r.max_rss_mb, 0)} |`);
+console.log('| what | wall s (median) | MB/s | ratio to wc -l | CPU s (all threads) | peak RSS MB |');
+console.log('|---|---|---|---|---|---|');
+for (const r of result.rows) console.log(`| ${r.what} | ${f(r.wall_s, 3)} | ${f(r.rate, 0)} | ${r.ratio_to_wc === null ? '—' : `${(100 * r.ratio_to_wc).toFixed(1)}%`} | ${f(r.cpu_s, 2)} | ${f(r.max_rss_mb, 0)} |`);
 console.log(`peak RSS of mapFrames (2 workers) on a quarter of the file: ${f(smallMap.max_rss_mb, 0)} MB (full file: ${f(result.memory_scaling.full_file_max_rss_mb, 0)} MB)`);
 if (!keep) {
   rmSync(big, { force: true });

@@ -5,9 +5,9 @@
  *  1. Positions are expressed in fractional coordinates of the effective cell (cell.ts: non-periodic axes get
  *     unit vectors orthogonal to the periodic ones; a non-periodic system uses Cartesian axes) and wrapped
  *     into [0, 1) along periodic axes.
- *  2. Each axis is cut into n_k slabs ("bins") whose perpendicular thickness h_k is at least cutoff/2 (periodic
- *     axes span one cell, non-periodic axes the bounding box of the atoms). Because the bins are parallelepipeds
- *     measured by perpendicular widths, the search is exact for any cell shape, however skewed.
+ *  2. Each axis is cut into n_k slabs ("bins") whose perpendicular thickness h_k is at least the cutoff, or half of
+ *     it in dense systems (periodic axes span one cell, non-periodic axes the bounding box of the atoms). Because the
+ *     bins are parallelepipeds measured by perpendicular widths, the search is exact for any cell shape, however skewed.
  *  3. Periodic images of atoms that lie within reach of the cell ("ghosts") are materialised into padding bins
  *     around the interior; when the cutoff exceeds the cell width, several layers of images are made.
  *  4. For every interior bin, atoms are compared with atoms in the same bin (each pair once) and in a half stencil
@@ -118,7 +118,6 @@ function buildGrid(system: AtomsGeometry, cutoff: number, binFractionOption: num
     }
   }
 
-  // Extent of each axis in fractional units and in perpendicular Å.
   // Occupancy of a cutoff-sized bin decides the default bin size (see NeighbourOptions.binFraction).
   let binFraction = binFractionOption ?? 1;
   if (binFractionOption === undefined) {
@@ -130,6 +129,7 @@ function buildGrid(system: AtomsGeometry, cutoff: number, binFractionOption: num
     if (n / cells >= 20) binFraction = 0.5;
   }
   const binTarget = cutoff * binFraction;
+  // Extent of each axis in fractional units and in perpendicular Å.
   const origin = [0, 0, 0];
   const range = [1, 1, 1];
   const thick = [0, 0, 0];
@@ -550,7 +550,10 @@ export function minimumDistance(system: AtomsGeometry): ClosestPair {
   }
 }
 
-/** Closest pair per group pair; distance[g*G+h] === distance[h*G+g]. Infinity where no such pair exists. */
+/**
+ * Closest pair per group pair; distance[g*G+h] === distance[h*G+g], Infinity (and i = j = -1) where no such pair exists.
+ * At [g*G+h], atom i is in group g and atom j in group h.
+ */
 export interface GroupClosest {
   groups: number;
   distance: Float64Array;
@@ -653,8 +656,8 @@ function directGroups(
 }
 
 /**
- * Closest pair per species pair, keyed "A-B" with the two symbols sorted alphabetically (as in the contacts gate JSON).
- * Only species pairs that can occur are present.
+ * Closest pair per species pair, keyed "A-B" with the two symbols sorted alphabetically (as in the contacts gate JSON);
+ * atom i has species A and atom j species B (i <= j when A = B). Only species pairs that can occur are present.
  */
 export function minimumDistanceBySpecies(
   frame: AtomsGeometry & { species: readonly string[] },

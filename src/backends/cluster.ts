@@ -155,6 +155,8 @@ export class ClusterBackend implements Backend {
   /** Recorded job id -> task folder (for poll/cancel calls that carry no dir). */
   private readonly dirs = new Map<string, string>();
   private readonly cancelled = new Set<string>();
+  /** When a job was first found missing from both the queue and the history (for the grace before `lost`). */
+  private readonly missingSince = new Map<string, number>();
   private cache?: { at: number; ids: Set<string>; jobs: Map<string, SchedJob> };
   private intervalMs: number;
   private failures = 0;
@@ -354,6 +356,14 @@ export class ClusterBackend implements Backend {
   private async gone(s: Submission, dir: string, rec: ExitRecord | undefined): Promise<TaskStatus> {
     if (rec) return this.byExitCode(s, dir, rec, 'the scheduler no longer knows the job');
     if (this.cancelled.has(s.job_id)) return { id: s.id, job_id: s.job_id, state: 'cancelled', reason: 'cancelled by ratchet before it wrote an exit record' };
+    // The exit record (shared file system) or the accounting record (Grid Engine flushes it after the
+    // job leaves the queue) may show up late: wait the grace before calling the job lost.
+    const now = this.now();
+    const since = this.missingSince.get(s.job_id) ?? now;
+    this.missingSince.set(s.job_id, since);
+    if (now - since < this.graceMs) {
+      return { id: s.id, job_id: s.job_id, state: 'running', reason: `the scheduler no longer lists job ${s.job_id}; waiting for its exit record or accounting record` };
+    }
     return { id: s.id, job_id: s.job_id, state: 'lost', reason: `the scheduler does not know job ${s.job_id} and the task wrote no exit record` };
   }
 

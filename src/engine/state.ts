@@ -58,7 +58,6 @@ export interface RoundRecord {
 export interface CampaignState {
   rounds: RoundRecord[];
   tasks: Map<string, TaskRecord>;
-  artifacts: Map<string, ArtifactEvent & { seq: number }>;
   /** The latest artifact registered at each path (relative to the campaign dir). */
   byPath: Map<string, ArtifactEvent & { seq: number }>;
   ended?: CampaignEndedEvent & { at: string };
@@ -70,7 +69,7 @@ export interface CampaignState {
 }
 
 export function emptyState(): CampaignState {
-  return { rounds: [], tasks: new Map(), artifacts: new Map(), byPath: new Map(), judged: new Set(), events: 0, lastSeq: 0 };
+  return { rounds: [], tasks: new Map(), byPath: new Map(), judged: new Set(), events: 0, lastSeq: 0 };
 }
 
 function roundRecord(s: CampaignState, round: number): RoundRecord {
@@ -146,7 +145,6 @@ export function applyEvent(s: CampaignState, e: LedgerEvent): CampaignState {
     }
     case 'artifact': {
       const a = e as unknown as ArtifactEvent & { seq: number };
-      if (!s.artifacts.has(a.id)) s.artifacts.set(a.id, a);
       s.byPath.set(a.path, a);
       break;
     }

@@ -2,12 +2,14 @@
 import { spawnSync } from 'node:child_process';
 import { rmSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { describe, expect, it } from 'vitest';
+import { afterAll, describe, expect, it } from 'vitest';
 import { shellQuote } from '../../src/backends/shell.js';
-import { REPO, cliArgs, ledgerEvents, makeCampaign } from '../engine/fixture.js';
+import { REPO, cliArgs, ledgerEvents, makeCampaign, removeCampaigns } from '../engine/fixture.js';
 
 const ratchet = (args: string[]) =>
   spawnSync(process.execPath, [...cliArgs(), ...args], { cwd: REPO, env: { ...process.env, NO_COLOR: '1' }, encoding: 'utf8', timeout: 120_000 });
+
+afterAll(removeCampaigns);
 
 describe('ratchet retry', () => {
   it('runs a failed task again after run said how', () => {

@@ -5,12 +5,14 @@
 import { spawn, spawnSync } from 'node:child_process';
 import { existsSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { describe, expect, it } from 'vitest';
+import { afterAll, describe, expect, it } from 'vitest';
 import { livePid } from '../../src/backends/local.js';
-import { REPO, cliArgs, ledgerEvents, makeCampaign } from '../engine/fixture.js';
+import { REPO, cliArgs, ledgerEvents, makeCampaign, removeCampaigns } from '../engine/fixture.js';
 
 const ratchet = (args: string[]) =>
   spawnSync(process.execPath, [...cliArgs(), ...args], { cwd: REPO, env: { ...process.env, NO_COLOR: '1' }, encoding: 'utf8', timeout: 120_000 });
+
+afterAll(removeCampaigns);
 
 describe('ratchet run', () => {
   it('exit 2 for a bad campaign, with the file named, and no ledger', () => {

@@ -1,12 +1,14 @@
 /** `ratchet status` as a process: text and --json, on a fresh and on a half-run campaign; exit 2 for bad input. */
 import { spawnSync } from 'node:child_process';
-import { describe, expect, it } from 'vitest';
+import { afterAll, describe, expect, it } from 'vitest';
 import { runCampaign } from '../../src/engine/run.js';
 import { BufferOutput } from '../../src/engine/output.js';
-import { REPO, cliArgs, makeCampaign } from '../engine/fixture.js';
+import { REPO, cliArgs, makeCampaign, removeCampaigns } from '../engine/fixture.js';
 
 const ratchet = (args: string[], env: Record<string, string> = { NO_COLOR: '1' }) =>
   spawnSync(process.execPath, [...cliArgs(), ...args], { cwd: REPO, env: { ...process.env, ...env }, encoding: 'utf8', timeout: 120_000 });
+
+afterAll(removeCampaigns);
 
 describe('ratchet status', () => {
   it('says nothing has run on a fresh campaign', () => {

@@ -12,11 +12,11 @@
 import { spawnSync } from 'node:child_process';
 import { existsSync, readFileSync, readdirSync, statSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { describe, expect, it } from 'vitest';
+import { afterAll, describe, expect, it } from 'vitest';
 import { livePid } from '../../src/backends/local.js';
 import { runCampaign } from '../../src/engine/run.js';
 import { BufferOutput } from '../../src/engine/output.js';
-import { REPO, cliArgs, ledgerEvents, makeCampaign } from './fixture.js';
+import { REPO, cliArgs, ledgerEvents, makeCampaign, removeCampaigns } from './fixture.js';
 
 /** Latest artifact id at each path. */
 function finalArtifacts(dir: string): Map<string, string> {
@@ -49,11 +49,14 @@ const fixture = () => {
 // Kill points, in the order the runs meet them (each counted within its own process).
 const KILLS = [
   'append:3', 'submitted:1', 'hashed:1', 'gated:1', 'planned:1', 'submitted:2', 'running:1', 'append:2',
-  'merged:1', 'hashed:1', 'running:1', 'archived:1', 'append:6', 'planned:1', 'running:1', 'gated:1',
-  'submitted:3', 'running:1', 'hashed:1', 'append:4', 'planned:1', 'running:1', 'merged:1', 'append:9',
-  // Between a round's last verdict and its judgement (converged or not), twice in a row.
+  'merged:1', 'hashed:1', 'running:1', 'archived:1',
+  // Between round 0's last verdict and its judgement (converged or not), twice in a row.
   'judging:1', 'judging:1',
+  'append:6', 'planned:1', 'running:1', 'gated:1', 'submitted:3', 'running:1', 'hashed:1', 'append:4',
+  'planned:1', 'running:1', 'merged:1', 'append:9', 'judging:1',
 ];
+
+afterAll(removeCampaigns);
 
 describe('crash and resume', () => {
   it('ends as an uninterrupted run would, whatever the point a SIGKILL lands', async () => {

@@ -5,10 +5,10 @@
 import { execFileSync } from 'node:child_process';
 import { existsSync, readFileSync, readdirSync } from 'node:fs';
 import { join } from 'node:path';
-import { describe, expect, it } from 'vitest';
+import { afterAll, describe, expect, it } from 'vitest';
 import { runCampaign } from '../../src/engine/run.js';
 import { BufferOutput } from '../../src/engine/output.js';
-import { listFiles, makeCampaign } from './fixture.js';
+import { listFiles, makeCampaign, removeCampaigns } from './fixture.js';
 
 async function run(file: string, extra: { dryRun?: boolean; until?: string } = {}) {
   const out = new BufferOutput();
@@ -20,6 +20,8 @@ function planFolders(dir: string): string[] {
   const p = join(dir, '.ratchet/plan');
   return existsSync(p) ? readdirSync(p).sort() : [];
 }
+
+afterAll(removeCampaigns);
 
 describe('dry run', () => {
   it('on a fresh campaign: plans the sample stage on paper, creates no ledger', async () => {

@@ -2,7 +2,7 @@
  * A small invented campaign for the engine tests: 4-atom argon-like fcc cells (invented data, for the
  * engine only), stage commands from fake-stage.mjs, two conditions, a committee of two.
  */
-import { mkdirSync, mkdtempSync, readFileSync, writeFileSync, existsSync, readdirSync, statSync } from 'node:fs';
+import { mkdirSync, mkdtempSync, readFileSync, rmSync, writeFileSync, existsSync, readdirSync, statSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -104,9 +104,17 @@ backend:
 ${o.extraYaml ?? ''}`;
 }
 
+const made: string[] = [];
+
+/** Remove every campaign this test file made (call from afterAll). */
+export function removeCampaigns(): void {
+  for (const d of made.splice(0)) rmSync(d, { recursive: true, force: true });
+}
+
 /** Write a fresh campaign; returns its directory and campaign file path. */
 export function makeCampaign(o: FixtureOptions = {}): { dir: string; file: string } {
   const root = mkdtempSync(join(tmpdir(), 'ratchet-engine-'));
+  made.push(root);
   const dir = o.dirName ? join(root, o.dirName) : root;
   if (o.dirName) mkdirSync(dir, { recursive: true });
   writeFileSync(join(dir, 'start.xyz'), startXyz());

@@ -7,12 +7,12 @@
 import { execFileSync } from 'node:child_process';
 import { existsSync, readFileSync, readdirSync, writeFileSync, statSync } from 'node:fs';
 import { join } from 'node:path';
-import { describe, expect, it } from 'vitest';
+import { afterAll, describe, expect, it } from 'vitest';
 import { hostname } from 'node:os';
 import { Journal } from '../../src/ledger/journal.js';
 import { runCampaign } from '../../src/engine/run.js';
 import { BufferOutput } from '../../src/engine/output.js';
-import { makeCampaign } from './fixture.js';
+import { makeCampaign, removeCampaigns } from './fixture.js';
 
 async function run(file: string, extra: Record<string, unknown> = {}) {
   const out = new BufferOutput();
@@ -20,6 +20,8 @@ async function run(file: string, extra: Record<string, unknown> = {}) {
   const r = await runCampaign({ campaign: file, out, error: (m) => errors.push(m), ...extra });
   return { ...r, text: out.text, errors: errors.join('\n') };
 }
+
+afterAll(removeCampaigns);
 
 describe('bad input', () => {
   it('a campaign with an unknown key: exit 2, the file and line named, no ledger', async () => {
@@ -59,7 +61,7 @@ describe('bad input', () => {
 
 describe('starting structures outside the campaign directory', () => {
   it('are copied into inputs/ and registered there, so every artifact lies inside the campaign', async () => {
-    const { dir, file } = makeCampaign();
+    const { dir, file } = makeCampaign({ dirName: 'campaign' });
     const outside = join(dir, '..', `outside-${process.pid}.xyz`);
     writeFileSync(outside, readFileSync(join(dir, 'start.xyz')));
     writeFileSync(file, readFileSync(file, 'utf8').replace('start: start.xyz', `start: ${JSON.stringify(outside)}`));

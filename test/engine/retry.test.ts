@@ -5,11 +5,11 @@
  */
 import { existsSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { describe, expect, it } from 'vitest';
+import { afterAll, describe, expect, it } from 'vitest';
 import { runCampaign } from '../../src/engine/run.js';
 import { BufferOutput } from '../../src/engine/output.js';
 import { campaignStatus, formatStatus } from '../../src/engine/status.js';
-import { ledgerEvents, makeCampaign, campaignYaml } from './fixture.js';
+import { ledgerEvents, makeCampaign, campaignYaml, removeCampaigns } from './fixture.js';
 
 async function run(file: string, extra: { retry?: string; until?: string } = {}) {
   const out = new BufferOutput();
@@ -20,6 +20,8 @@ async function run(file: string, extra: { retry?: string; until?: string } = {})
 
 const runs = (dir: string, task: string): number =>
   existsSync(join(dir, 'rounds', task, 'runs.log')) ? readFileSync(join(dir, 'rounds', task, 'runs.log'), 'utf8').trim().split('\n').length : 0;
+
+afterAll(removeCampaigns);
 
 describe('a failing task and its retry', () => {
   it('blocks the stage, says what to do, and runs the task again as attempt 2', async () => {

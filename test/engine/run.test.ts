@@ -6,13 +6,15 @@
 import { execFileSync } from 'node:child_process';
 import { existsSync, readFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { beforeAll, describe, expect, it } from 'vitest';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { upstream, roots } from '../../src/ledger/lineage.js';
 import { runCampaign } from '../../src/engine/run.js';
 import { BufferOutput } from '../../src/engine/output.js';
 import { campaignStatus, formatStatus } from '../../src/engine/status.js';
 import { STAGES } from '../../src/engine/ids.js';
-import { ledgerEvents, makeCampaign } from './fixture.js';
+import { ledgerEvents, makeCampaign, removeCampaigns } from './fixture.js';
+
+afterAll(removeCampaigns);
 
 describe('a campaign from start to convergence', () => {
   const { dir, file } = makeCampaign();

@@ -80,7 +80,7 @@ describe('folding the ledger into the campaign state', () => {
     const a = (id: string, path: string) => ev({ type: 'artifact', id, path, role: 'model', inputs: [], campaign_sha256: 'x', tool_version: '0' });
     const s = foldEvents([a('sha256:1', 'm'), ev({ type: 'something_new', x: 1 }), a('sha256:2', 'm'), a('sha256:1', 'n')]);
     expect(s.byPath.get('m')!.id).toBe('sha256:2');
-    expect(s.artifacts.size).toBe(2);
+    expect(s.byPath.size).toBe(2);
     expect(s.events).toBe(4);
   });
 

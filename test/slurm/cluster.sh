@@ -49,6 +49,8 @@ JobCompType=jobcomp/filetxt
 JobCompLoc=$STATE/jobcomp.log
 ReturnToService=2
 MaxArraySize=1001
+# Jobs that ask for no memory get 256 MiB per cpu instead of the whole node (CR_Core_Memory).
+DefMemPerCPU=256
 KillWait=5
 InactiveLimit=0
 NodeName=node1 NodeHostname=localhost NodeAddr=127.0.0.1 CPUs=$cpus RealMemory=$mem State=UNKNOWN

@@ -22,7 +22,10 @@ const CLUSTER = join(import.meta.dirname, 'cluster.sh');
 const installed = spawnSync('sh', ['-c', 'command -v slurmctld && command -v sbatch'], { encoding: 'utf8' }).status === 0;
 if (!installed) console.warn('test/slurm: slurmctld is not installed, so the real-Slurm tests are skipped (bash test/slurm/cluster.sh install, as .ci/run does, installs it)');
 
-const sinfoUp = () => spawnSync('sinfo', ['-h', '-o', '%T'], { encoding: 'utf8', timeout: 20_000 }).stdout?.match(/idle|mixed|allocated/) !== null && spawnSync('sinfo', ['-h'], { timeout: 20_000 }).status === 0;
+function sinfoUp(): boolean {
+  const r = spawnSync('sinfo', ['-h', '-o', '%T'], { encoding: 'utf8', timeout: 20_000 });
+  return r.status === 0 && /idle|mixed|allocated/.test(r.stdout ?? '');
+}
 let startedHere = false;
 const mine: Submission[] = [];
 
@@ -136,8 +139,8 @@ describe.skipIf(!installed)('real Slurm 22.05', () => {
   });
 
   it('reports a job id the scheduler never had as lost', async () => {
-    const b = backend();
-    const [st] = await b.poll([{ id: 'r0/label/0000', job_id: '999999', dir: tempDir() }]);
+    const b = backend({ exitGraceS: 1 });
+    const [st] = await settle(b, [{ id: 'r0/label/0000', job_id: '999999', dir: tempDir() }], 30_000);
     expect(st.state).toBe('lost');
     expect(st.reason).toMatch(/does not know job 999999/);
   });

@@ -1,15 +1,18 @@
 /**
  * mapFrames: apply a pure per-frame function to every frame of a file, results in file order.
  *
- * With workers > 1 the calling thread reads the file (inflating gzip itself: a gzip stream cannot be
- * split by offset), finds frame boundaries with a native newline scan, copies whole frames into batches
- * and transfers them to worker threads, which parse only the requested columns and apply the function.
- * At most 2 batches per worker are in flight (backpressure), so memory stays bounded whatever the file
- * size. Errors surface as the same XyzError (file and absolute line) as the sequential reader gives,
- * and the first error in file order wins. Small files (under 2 batches) are read on the calling thread.
+ * With workers = n > 1 the calling thread reads the file (inflating gzip itself: a gzip stream cannot
+ * be split by offset), finds frame boundaries with a native newline scan and groups whole frames into
+ * batches; n - 1 worker threads get batches copied into recycled buffers (transferred, not cloned) and
+ * parse only the requested columns and apply the function; when they all have 2 batches queued, the
+ * calling thread parses the next batch itself. At most 2 batches per worker are in flight
+ * (backpressure), so memory stays bounded whatever the file size. Errors surface as the same XyzError
+ * (file and absolute line) as the sequential reader gives, and the first error in file order wins.
+ * Small files (under 2 batches) are read on the calling thread only.
  *
- * Running from TypeScript sources (this module's URL ends in .ts, as under vitest or tsx), workers are
- * started with `--import tsx`; when tsx cannot be found the work is done on the calling thread instead.
+ * Running from TypeScript sources (this module's URL ends in .ts, as under vitest or tsx), workers
+ * register tsx themselves (Node 20 does not apply --import hooks inside worker threads); when tsx
+ * cannot be found the work is done on the calling thread instead.
  */
 import { readFileSync } from 'node:fs';
 import { stat } from 'node:fs/promises';
@@ -18,7 +21,8 @@ import { createRequire } from 'node:module';
 import { pathToFileURL } from 'node:url';
 import { Worker } from 'node:worker_threads';
 import type { Frame } from '../frame.js';
-import { deserializeError, SPAN_FIELDS, type BatchMessage, type FrameJob, type ReplyMessage } from './map-protocol.js';
+import { parseFrame } from './frame-parse.js';
+import { deserializeError, serializeError, SPAN_FIELDS, type BatchMessage, type FrameJob, type ReplyMessage } from './map-protocol.js';
 import { readFrames } from './reader.js';
 import { END, FrameScanner, type FrameSpan } from './scanner.js';
 import { openSource } from './source.js';
@@ -26,10 +30,15 @@ import { openSource } from './source.js';
 export type { FrameJob } from './map-protocol.js';
 
 export interface MapOptions {
-  /** Worker threads to use; 1 (the default) means parse on the calling thread. */
+  /**
+   * Threads that parse, the calling thread included: 1 (the default) parses on the calling thread only;
+   * n > 1 starts n - 1 worker threads and the calling thread takes a share of the batches too.
+   */
   workers?: number;
   /** Bytes of whole frames per batch sent to a worker (default 2 MiB). Files under 2 batches are read on the calling thread. */
   batchBytes?: number;
+  /** Let the calling thread parse batches when every worker is busy (default true); false sends every batch to a worker. */
+  callerParses?: boolean;
 }
 
 /** How mapFrames ran, for tests and benchmarks. */
@@ -38,7 +47,9 @@ export interface MapStats {
   /** Why the sequential path was taken, when it was. */
   reason?: string;
   batches: number;
-  /** Most batches in flight at once. */
+  /** Batches parsed on the calling thread (parallel mode). */
+  callerBatches?: number;
+  /** Most batches in flight to workers at once. */
   maxInFlight: number;
 }
 
@@ -59,9 +70,8 @@ export async function mapFrames<R>(path: string, job: FrameJob, opts: MapOptions
   if (size < 2 * batchBytes) return sequential(path, job, `file smaller than 2 batches (${size} bytes)`);
   const launch = workerLaunch(job);
   if (launch === null) return sequential(path, job, 'TypeScript sources and no tsx loader for worker threads');
-  // Fail early, on this thread, when the job's function does not exist.
-  await loadFn<R>(job);
-  return parallel<R>(path, job, workers, batchBytes, launch);
+  const fn = await loadFn<R>(job);
+  return parallel<R>(path, job, fn, workers, batchBytes, launch, opts.callerParses ?? true);
 }
 
 async function loadFn<R>(job: FrameJob): Promise<JobFn<R>> {
@@ -141,9 +151,24 @@ interface Slot {
   outstanding: number;
 }
 
-async function parallel<R>(path: string, job: FrameJob, nWorkers: number, batchBytes: number, launch: Launch): Promise<R[]> {
+/**
+ * The parallel path: `threads` parsing threads, the calling thread included. The calling thread reads
+ * and scans the file; each batch of whole frames goes to a worker thread that has fewer than 2 batches
+ * queued, or, when all are busy, is parsed right here (so that on 2 cores, 2 threads share the work and
+ * no core is oversubscribed by a thread that only waits).
+ */
+async function parallel<R>(
+  path: string,
+  job: FrameJob,
+  fn: JobFn<R>,
+  threads: number,
+  batchBytes: number,
+  launch: Launch,
+  callerParses: boolean,
+): Promise<R[]> {
   const source = await openSource(path);
   const scanner = new FrameScanner(source, path);
+  const wanted = job.columns ? new Set(job.columns) : null;
   const maxPerWorker = 2;
   const slots: Slot[] = [];
   const done = new Map<number, ReplyMessage>();
@@ -153,6 +178,7 @@ async function parallel<R>(path: string, job: FrameJob, nWorkers: number, batchB
   let nextId = 0;
   let inFlight = 0;
   let maxInFlight = 0;
+  let callerBatches = 0;
   let failedAt = Infinity; // smallest batch id that failed
   let fatal: Error | null = null; // a worker that died
   let wake: (() => void) | null = null;
@@ -162,7 +188,7 @@ async function parallel<R>(path: string, job: FrameJob, nWorkers: number, batchB
     w?.();
   };
 
-  for (let k = 0; k < nWorkers; k++) {
+  for (let k = 0; k < threads - 1; k++) {
     const workerData = { file: path, job, __boot: launch.boot };
     const worker = launch.eval
       ? new Worker(launch.entry as string, { eval: true, workerData, execArgv: [] })
@@ -199,36 +225,52 @@ async function parallel<R>(path: string, job: FrameJob, nWorkers: number, batchB
     }
   };
 
+  /** Parse a batch on this thread, straight from the scanner's window. */
+  const local = async (batch: FrameSpan[], id: number) => {
+    try {
+      const results: unknown[] = [];
+      for (const span of batch) results.push(await fn(parseFrame(scanner.buf, span, path, wanted, scanner.lastLineOpen), span.index, job.options));
+      done.set(id, { id, results });
+    } catch (err) {
+      done.set(id, { id, error: serializeError(err) });
+      if (id < failedAt) failedAt = id;
+    }
+  };
+
   const dispatch = async (batch: FrameSpan[]) => {
-    const base = batch[0].start;
-    const end = batch[batch.length - 1].end;
-    // Batch buffers come back from the workers and are reused: fresh large buffers cost page faults.
-    let ab = pool.pop();
-    while (ab !== undefined && ab.byteLength < end - base) ab = pool.pop();
-    ab ??= new ArrayBuffer(Math.max(end - base, 2 * batchBytes));
-    const bytes = new Uint8Array(ab, 0, end - base);
-    bytes.set(scanner.buf.subarray(base, end));
-    const spans = new Float64Array(batch.length * SPAN_FIELDS);
-    batch.forEach((s, k) => {
-      spans.set([s.index, s.line, s.natoms, s.start - base, s.commentStart - base, s.commentEnd - base, s.atomsStart - base, s.end - base], k * SPAN_FIELDS);
-    });
-    const open = scanner.lastLineOpen;
-    const msg: BatchMessage = { id: nextId++, buf: ab, length: end - base, spans, lastLineOpen: open >= base && open < end ? open - base : -1 };
+    const id = nextId++;
+    let best: Slot | null = null;
     for (;;) {
       if (fatal) throw fatal;
-      let best: Slot | null = null;
       for (const s of slots) if (s.outstanding < maxPerWorker && (best === null || s.outstanding < best.outstanding)) best = s;
-      if (best !== null) {
-        best.outstanding++;
-        inFlight++;
-        maxInFlight = Math.max(maxInFlight, inFlight);
-        best.worker.postMessage(msg, [msg.buf, spans.buffer]);
+      if (best !== null) break;
+      if (callerParses) {
+        callerBatches++;
+        await local(batch, id);
         flush();
         return;
       }
       await waitForProgress();
       flush();
     }
+    const base = batch[0].start;
+    const end = batch[batch.length - 1].end;
+    // Batch buffers come back from the workers and are reused: fresh large buffers cost page faults.
+    let ab = pool.pop();
+    while (ab !== undefined && ab.byteLength < end - base) ab = pool.pop();
+    ab ??= new ArrayBuffer(Math.max(end - base, 2 * batchBytes));
+    new Uint8Array(ab, 0, end - base).set(scanner.buf.subarray(base, end));
+    const spans = new Float64Array(batch.length * SPAN_FIELDS);
+    batch.forEach((s, k) => {
+      spans.set([s.index, s.line, s.natoms, s.start - base, s.commentStart - base, s.commentEnd - base, s.atomsStart - base, s.end - base], k * SPAN_FIELDS);
+    });
+    const open = scanner.lastLineOpen;
+    const msg: BatchMessage = { id, buf: ab, length: end - base, spans, lastLineOpen: open >= base && open < end ? open - base : -1 };
+    best.outstanding++;
+    inFlight++;
+    maxInFlight = Math.max(maxInFlight, inFlight);
+    best.worker.postMessage(msg, [msg.buf, spans.buffer]);
+    flush();
   };
 
   let scanError: unknown = null;
@@ -266,7 +308,7 @@ async function parallel<R>(path: string, job: FrameJob, nWorkers: number, batchB
     const failed = done.get(flushed);
     if (failed !== undefined && 'error' in failed) throw deserializeError(failed.error);
     if (scanError !== null) throw scanError;
-    lastMapStats = { mode: 'parallel', batches: nextId, maxInFlight };
+    lastMapStats = { mode: 'parallel', batches: nextId, callerBatches, maxInFlight };
     return out;
   } finally {
     await Promise.all(slots.map((s) => s.worker.terminate()));

@@ -1,7 +1,8 @@
 /**
  * mapFrames: the worker-thread path gives exactly the results of the sequential path (same order, same
- * numbers), surfaces the same XyzError (file and absolute line) as the sequential reader, keeps a bounded
- * number of batches in flight, and reads gzip (inflated on the calling thread, parsed in the workers).
+ * numbers), whether or not the calling thread shares the parsing, surfaces the same XyzError (file and
+ * absolute line) as the sequential reader, keeps a bounded number of batches in flight, and reads gzip
+ * (inflated on the calling thread, parsed in the workers).
  * Under vitest the sources are TypeScript, so workers load tsx; the built dist/ (when present) is
  * tested too, with a plain JavaScript job, which needs no loader.
  */
@@ -48,12 +49,15 @@ describe('mapFrames', () => {
     expect(seq[0].arrays).toEqual(['forces']);
     expect(seq[0].scale).toBe(3);
     for (const workers of [2, 3]) {
-      const par = await mapFrames<Summary>(plain, job, { workers, batchBytes: BATCH });
-      expect(lastMapStats.mode).toBe('parallel');
-      expect(lastMapStats.batches).toBeGreaterThan(10);
-      // backpressure: at most 2 batches per worker in flight
-      expect(lastMapStats.maxInFlight).toBeLessThanOrEqual(2 * workers);
-      expect(par).toEqual(seq);
+      for (const callerParses of [true, false]) {
+        const par = await mapFrames<Summary>(plain, job, { workers, batchBytes: BATCH, callerParses });
+        expect(lastMapStats.mode).toBe('parallel');
+        expect(lastMapStats.batches).toBeGreaterThan(10);
+        if (!callerParses) expect(lastMapStats.callerBatches).toBe(0);
+        // backpressure: at most 2 batches per worker thread in flight
+        expect(lastMapStats.maxInFlight).toBeLessThanOrEqual(2 * (workers - 1));
+        expect(par).toEqual(seq);
+      }
     }
   });
 
@@ -90,9 +94,10 @@ describe('mapFrames', () => {
     lines[target] = tokens.join(' ');
     const bad = put(dir, 'bad.xyz', lines.join('\n'));
     const errors: XyzError[] = [];
-    for (const workers of [1, 2]) {
+    // sequential; parallel with the error parsed wherever it lands; parallel with every batch on a worker
+    for (const [workers, callerParses] of [[1, true], [2, true], [2, false]] as const) {
       try {
-        await mapFrames(bad, job, { workers, batchBytes: BATCH });
+        await mapFrames(bad, job, { workers, batchBytes: BATCH, callerParses });
         expect.fail('no error');
       } catch (err) {
         expect(err).toBeInstanceOf(XyzError);
@@ -100,8 +105,9 @@ describe('mapFrames', () => {
       }
     }
     expect(errors[1].message).toBe(errors[0].message);
-    expect(errors[1].line).toBe(target + 1);
-    expect(errors[1].file).toBe(bad);
+    expect(errors[2].message).toBe(errors[0].message);
+    expect(errors[2].line).toBe(target + 1);
+    expect(errors[2].file).toBe(bad);
     expect(errors[0].message).toMatch(/column 5 \(forces, component 1 of 3\): expected a real number, found "1\.2\.3"$/);
     // a column that is not requested is skipped unparsed (only its column count is checked)
     const skipped = await mapFrames<Summary>(bad, { ...job, columns: [] }, { workers: 2, batchBytes: BATCH });
@@ -115,7 +121,9 @@ describe('mapFrames', () => {
     lines[early] = lines[early].replace(/^H (\S+)/, 'H x$1');
     lines[late] = lines[late].replace(/^H (\S+)/, 'H y$1');
     const bad = put(dir, 'two-bad.xyz', lines.join('\n'));
-    await expect(mapFrames(bad, job, { workers: 2, batchBytes: BATCH })).rejects.toThrow(`${bad}:${early + 1}: `);
+    for (const callerParses of [true, false]) {
+      await expect(mapFrames(bad, job, { workers: 3, batchBytes: BATCH, callerParses })).rejects.toThrow(`${bad}:${early + 1}: `);
+    }
     const cut = put(dir, 'cut.xyz', text.slice(0, text.length - 300));
     const seqErr = await mapFrames(cut, job, { workers: 1 }).catch((e: Error) => e);
     const parErr = await mapFrames(cut, job, { workers: 2, batchBytes: BATCH }).catch((e: Error) => e);
@@ -125,8 +133,8 @@ describe('mapFrames', () => {
   });
 
   it('surfaces errors thrown by the job and refuses a missing function', async () => {
-    for (const workers of [1, 2]) {
-      await expect(mapFrames(plain, { module: JOBS, fn: 'failOnFive' }, { workers, batchBytes: BATCH })).rejects.toThrow(/^job refused frame 5 with \d+ atoms$/);
+    for (const [workers, callerParses] of [[1, true], [2, true], [2, false]] as const) {
+      await expect(mapFrames(plain, { module: JOBS, fn: 'failOnFive' }, { workers, batchBytes: BATCH, callerParses })).rejects.toThrow(/^job refused frame 5 with \d+ atoms$/);
     }
     await expect(mapFrames(plain, { module: JOBS, fn: 'notAFunction' }, { workers: 2, batchBytes: BATCH })).rejects.toThrow(`does not export a function 'notAFunction'`);
   });
@@ -138,7 +146,7 @@ describe('mapFrames', () => {
     writeFileSync(jsJob, 'export function count(frame, index) { let s = 0; for (const x of frame.positions) s += x; return [index, frame.species.length, s]; }\n');
     const jsJobUrl = pathToFileURL(jsJob).href;
     const seq = await mod.mapFrames(plain, { module: jsJobUrl, fn: 'count' }, { workers: 1 });
-    const par = await mod.mapFrames(plain, { module: jsJobUrl, fn: 'count' }, { workers: 2, batchBytes: BATCH });
+    const par = await mod.mapFrames(plain, { module: jsJobUrl, fn: 'count' }, { workers: 2, batchBytes: BATCH, callerParses: false });
     expect(mod.lastMapStats.mode).toBe('parallel');
     expect(par).toEqual(seq);
     expect(seq.length).toBe(120);

@@ -46,7 +46,7 @@ const qacct: Record<string, string> = {
 const SCHEDULERS: Scheduler[] = [
   {
     name: 'slurm',
-    make: (runner) => new SlurmBackend({ runner, pollIntervalS: 30, exitGraceS: 60, jobcompFile: undefined }),
+    make: (runner) => new SlurmBackend({ runner, pollIntervalS: 30, exitGraceS: 0, jobcompFile: undefined }),
     handlers: {
       squeue: () => ({ stdout: `${squeue}\n` }),
       sacct: () => ({ exitCode: 1, stderr: 'sacct: error: Slurm accounting storage is disabled\n' }),
@@ -69,7 +69,7 @@ const SCHEDULERS: Scheduler[] = [
   },
   {
     name: 'pbs',
-    make: (runner) => new PbsBackend({ runner, pollIntervalS: 30, exitGraceS: 60 }),
+    make: (runner) => new PbsBackend({ runner, pollIntervalS: 30, exitGraceS: 0 }),
     handlers: { qstat: () => ({ stdout: sample('pbs-qstat.json') }) },
     query: 'qstat',
     cases: [
@@ -87,7 +87,7 @@ const SCHEDULERS: Scheduler[] = [
   },
   {
     name: 'lsf',
-    make: (runner) => new LsfBackend({ runner, pollIntervalS: 30, exitGraceS: 60 }),
+    make: (runner) => new LsfBackend({ runner, pollIntervalS: 30, exitGraceS: 0 }),
     handlers: { bjobs: () => ({ stdout: sample('lsf-bjobs.txt'), stderr: 'Job <2999> is not found\n', exitCode: 255 }) },
     query: 'bjobs',
     cases: [
@@ -105,7 +105,7 @@ const SCHEDULERS: Scheduler[] = [
   },
   {
     name: 'sge',
-    make: (runner) => new SgeBackend({ runner, pollIntervalS: 30, exitGraceS: 60 }),
+    make: (runner) => new SgeBackend({ runner, pollIntervalS: 30, exitGraceS: 0 }),
     handlers: {
       qstat: () => ({ stdout: sample('sge-qstat.txt') }),
       qacct: (args) => (qacct[args[1]] ? { stdout: `==============================================================\n${qacct[args[1]].replace(/^={5,}\n/, '')}` } : { exitCode: 1, stderr: `error: job id ${args[1]} not found\n` }),
@@ -252,6 +252,16 @@ describe('poll cycle behaviour (Slurm dialect)', () => {
     const [st] = await b.poll(sub);
     expect(st.state).toBe('lost');
     expect(st.reason).toMatch(/COMPLETED but the task wrote no exit record/);
+  });
+
+  it('waits the grace before calling a vanished job lost (its records may show up late)', async () => {
+    let now = 0;
+    const fake = fakeRunner({ squeue: () => ({ stdout: '' }), sacct: () => ({ exitCode: 1, stderr: 'Slurm accounting storage is disabled' }), scontrol: () => ({ stdout: 'JobCompType = jobcomp/none\n' }) });
+    const b = new SlurmBackend({ runner: fake.runner, pollIntervalS: 0, exitGraceS: 30, now: () => now });
+    const sub = [{ id: 'a', job_id: '88', dir: tempDir() }];
+    expect((await b.poll(sub))[0]).toMatchObject({ state: 'running', reason: expect.stringMatching(/no longer lists job 88/) });
+    now += 30_000;
+    expect((await b.poll(sub))[0].state).toBe('lost');
   });
 
   it('reports a vanished job that this process cancelled as cancelled, not lost', async () => {

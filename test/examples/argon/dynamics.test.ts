@@ -1,6 +1,4 @@
-import { describe, expect, it } from 'vitest';
-import { mkdtemp } from 'node:fs/promises';
-import { tmpdir } from 'node:os';
+import { afterAll, describe, expect, it } from 'vitest';
 import { join } from 'node:path';
 import { mean, variance } from 'simple-statistics';
 import { atomicMass, massesOf } from '../../../src/atoms/elements.js';
@@ -16,7 +14,9 @@ import { bareCopy, realColumn } from '../../../examples/argon/lib/frames.js';
 import { fccCrystal, ljFccLatticeConstant } from '../../../examples/argon/lib/lattice.js';
 import { argonLj, ljEnergyForces } from '../../../examples/argon/lib/lj.js';
 import { createRandom } from '../../../examples/argon/lib/random.js';
-import { rattledFcc } from './helpers.js';
+import { rattledFcc, removeScratch, scratchDir } from './helpers.js';
+
+afterAll(removeScratch);
 
 const A = ljFccLatticeConstant(3.405);
 const AR = atomicMass('Ar');
@@ -97,7 +97,7 @@ function smallCommittee(members: number) {
 describe('constant-energy MD on a cold argon crystal (5 fs step)', () => {
   // Threshold: drift below 0.1 meV/atom/ps (common practice), measured with ratchet's drift gate on the written trajectory.
   it('conserves energy when driven by the LJ reference', async () => {
-    const dir = await mkdtemp(join(tmpdir(), 'argon-nve-'));
+    const dir = await scratchDir('argon-nve-');
     const crystal = fccCrystal('Ar', A, 2);
     const lj = argonLj();
     const provider: ForceProvider = (x) => ljEnergyForces({ positions: x, cell: crystal.cell, pbc: crystal.pbc }, lj);
@@ -114,7 +114,7 @@ describe('constant-energy MD on a cold argon crystal (5 fs step)', () => {
   });
 
   it('conserves energy when driven by the committee mean of trained pair models', async () => {
-    const dir = await mkdtemp(join(tmpdir(), 'argon-nve-'));
+    const dir = await scratchDir('argon-nve-');
     const crystal = fccCrystal('Ar', A, 2);
     const models = smallCommittee(4);
     const provider = committeeForces(models, crystal.species, crystal.cell, crystal.pbc, 'mean');

@@ -87,3 +87,20 @@ export function maxAbs(a: ArrayLike<number>): number {
   for (let i = 0; i < a.length; i++) m = Math.max(m, Math.abs(a[i]));
   return m;
 }
+
+const scratch: string[] = [];
+
+/** A fresh temporary directory, removed by removeScratch() (call it in afterAll). */
+export async function scratchDir(prefix: string): Promise<string> {
+  const { mkdtemp } = await import('node:fs/promises');
+  const { tmpdir } = await import('node:os');
+  const { join } = await import('node:path');
+  const dir = await mkdtemp(join(tmpdir(), prefix));
+  scratch.push(dir);
+  return dir;
+}
+
+export async function removeScratch(): Promise<void> {
+  const { rm } = await import('node:fs/promises');
+  await Promise.all(scratch.splice(0).map((d) => rm(d, { recursive: true, force: true })));
+}

@@ -1,6 +1,5 @@
-import { describe, expect, it } from 'vitest';
-import { mkdtemp, writeFile } from 'node:fs/promises';
-import { tmpdir } from 'node:os';
+import { afterAll, describe, expect, it } from 'vitest';
+import { writeFile } from 'node:fs/promises';
 import { join } from 'node:path';
 import { linearRegression } from 'simple-statistics';
 import { gaussianBasis, evalBasis } from '../../../examples/argon/lib/basis.js';
@@ -9,7 +8,9 @@ import { ljFccLatticeConstant } from '../../../examples/argon/lib/lattice.js';
 import { argonLj, ljEnergyForces } from '../../../examples/argon/lib/lj.js';
 import { evaluateCommittee, evaluateModel, loadModel, MODEL_FORMAT, ModelError, type PairModel } from '../../../examples/argon/lib/model.js';
 import { createRandom } from '../../../examples/argon/lib/random.js';
-import { finiteDifferenceForces, maxAbs, maxAbsDiff, randomPacking, rattledFcc, skewedCell } from './helpers.js';
+import { finiteDifferenceForces, maxAbs, maxAbsDiff, randomPacking, rattledFcc, skewedCell, removeScratch, scratchDir } from './helpers.js';
+
+afterAll(removeScratch);
 
 const A = ljFccLatticeConstant(3.405);
 
@@ -135,7 +136,7 @@ describe('ridge regression', () => {
 
 describe('model files', () => {
   it('refuses a malformed model file naming the file and key', async () => {
-    const dir = await mkdtemp(join(tmpdir(), 'argon-model-'));
+    const dir = await scratchDir('argon-model-');
     const good = randomModel(1);
     const bad = { ...good, pair_weights: { 'Ar-Ar': [1, 2] } };
     await writeFile(join(dir, 'bad.json'), JSON.stringify(bad));

@@ -1,11 +1,10 @@
 /**
  * The stage programs as the engine runs them: task.json + RATCHET_* environment, and by hand with flags.
  */
-import { describe, expect, it, beforeAll } from 'vitest';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { spawnSync } from 'node:child_process';
 import { createHash } from 'node:crypto';
-import { mkdir, mkdtemp, readFile, writeFile } from 'node:fs/promises';
-import { tmpdir } from 'node:os';
+import { mkdir, readFile, writeFile } from 'node:fs/promises';
 import { join, resolve } from 'node:path';
 import type { Frame } from '../../../src/atoms/frame.js';
 import { readFrames } from '../../../src/atoms/xyz/reader.js';
@@ -13,8 +12,10 @@ import { checkDrift, checkErrors } from '../../../src/gates/index.js';
 import { writeFrames } from '../../../src/atoms/xyz/writer.js';
 import { ljFccLatticeConstant } from '../../../examples/argon/lib/lattice.js';
 import { argonLj, ljEnergyForces } from '../../../examples/argon/lib/lj.js';
-import { rattledFcc } from './helpers.js';
+import { rattledFcc, removeScratch, scratchDir } from './helpers.js';
 import { resolveTask, type ProgramSpec } from '../../../examples/argon/lib/cli.js';
+
+afterAll(removeScratch);
 
 const ROOT = resolve(import.meta.dirname, '../../..');
 
@@ -44,7 +45,7 @@ let work: string;
 let unlabeled: string;
 
 beforeAll(async () => {
-  work = await mkdtemp(join(tmpdir(), 'argon programs '));
+  work = await scratchDir('argon programs ');
   unlabeled = join(work, 'sample', 'frames.xyz');
   await mkdir(join(work, 'sample'), { recursive: true });
   const a = ljFccLatticeConstant(3.405);

@@ -1,13 +1,14 @@
-import { describe, expect, it } from 'vitest';
+import { afterAll, describe, expect, it } from 'vitest';
 import { execFileSync } from 'node:child_process';
-import { mkdtemp } from 'node:fs/promises';
-import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { minimumDistance } from '../../../src/atoms/neighbours.js';
 import { writeFrames } from '../../../src/atoms/xyz/writer.js';
 import { fccCrystal, ljFccLatticeConstant } from '../../../examples/argon/lib/lattice.js';
 import { argonLj } from '../../../examples/argon/lib/lj.js';
 import { fccLatticeForDensity, meltedLiquid } from '../../../examples/argon/lib/start.js';
+import { removeScratch, scratchDir } from './helpers.js';
+
+afterAll(removeScratch);
 
 /** Runs a Python snippet with Debian's python3-ase (an independent cross-check of structures we make). */
 function python(code: string, ...args: string[]): string {
@@ -17,7 +18,7 @@ function python(code: string, ...args: string[]): string {
 describe('starting structures', () => {
   it('the fcc crystal matches ASE\'s bulk("Ar", "fcc", cubic=True) repeated 2x2x2, with 12 neighbours at a/sqrt2', async () => {
     // Cross-check with ASE (ase.build.bulk), an independent library, on the file we write.
-    const dir = await mkdtemp(join(tmpdir(), 'argon-start-'));
+    const dir = await scratchDir('argon-start-');
     const a = ljFccLatticeConstant(3.405);
     expect(a).toBeCloseTo(5.2497, 3); // sqrt(2) * 1.0902 * 3.405 Å (Kittel's r0, argon sigma)
     const file = join(dir, 'fcc.xyz');
@@ -44,7 +45,7 @@ print(np.bincount(i).min(), np.bincount(i).max())
   });
 
   it('the liquid-like start has the requested density (checked by ASE) and no close contacts', async () => {
-    const dir = await mkdtemp(join(tmpdir(), 'argon-start-'));
+    const dir = await scratchDir('argon-start-');
     const frame = meltedLiquid({ symbol: 'Ar', cells: 2, density: 1.4, meltTemperature: 250, meltSteps: 300, temperature: 100, coolSteps: 100, dt: 5, seed: 2, lj: argonLj() });
     // 4 atoms per cubic cell of side a: rho = 4 m / a^3
     expect(fccLatticeForDensity('Ar', 1.4)).toBeGreaterThan(5.7);
