@@ -7,7 +7,9 @@ const program = new Command();
 program
   .name('ratchet')
   .description('Run and check active-learning campaigns for machine-learned interatomic potentials.')
-  .version(VERSION);
+  .version(VERSION)
+  // Usage errors (unknown option, missing argument) are bad input: exit 2. Help and version exit 0.
+  .exitOverride((err) => process.exit(err.exitCode === 0 ? 0 : 2));
 registerCommands(program);
 program.parseAsync(process.argv).catch((err: unknown) => {
   process.stderr.write(`ratchet: ${err instanceof Error ? err.message : String(err)}\n`);

@@ -31,7 +31,7 @@ export {
   type StageSummary,
 } from './state.js';
 export { STAGES, parseTaskRef, parseUntil, untilPoint, taskId, stageId, taskName, type Stage, type Until, type Point, type TaskRef } from './ids.js';
-export { samplePolicy, placeholderSamplePolicy, type SamplePolicy, type SampleRequest, type SampleOutcome, type SampleSource } from './sample-policy.js';
+export { samplePolicy, type SamplePolicy, type SampleRequest, type SampleOutcome, type SampleSource } from './sample-policy.js';
 export { STAGE_DEFS } from './stages/index.js';
 export type { StageDef, StagePlan, PlannedTask, StageContext, StageVerdict } from './stages/types.js';
 export { campaignView, type CampaignView, type StageView, type ConditionView } from './view.js';

@@ -5,16 +5,10 @@
  * and where to write the chosen frames. The engine only records what the policy returns; the policy
  * knows nothing of the ledger, the backend or task directories.
  *
- * `placeholderSamplePolicy` below is a STAND-IN so the engine can run end to end: round 0 takes the
- * starting structures as they are, later rounds take every k-th frame of each trajectory. It does no
- * committee-based selection. The real policy (committee bands, contacts, farthest-point selection,
- * round-0 perturbations) lives in src/select/ and replaces it by changing the one assignment of
- * `samplePolicy` at the bottom of this file.
+ * The policy itself (round-0 perturbations; later rounds: committee bands, contacts, farthest-point
+ * selection) lives in src/select/policy.ts; this file holds the types and the one assignment.
  */
-import { readFrames } from '../atoms/xyz/reader.js';
-import { writeFrames } from '../atoms/xyz/writer.js';
-import { basename } from 'node:path';
-import type { Frame } from '../atoms/frame.js';
+import { committeeSamplePolicy } from '../select/policy.js';
 
 export interface SampleSource {
   /** Absolute path of an extended XYZ file. */
@@ -53,42 +47,5 @@ export interface SampleOutcome {
 
 export type SamplePolicy = (req: SampleRequest) => Promise<SampleOutcome>;
 
-/**
- * PLACEHOLDER policy (see the file comment): round 0 = every starting frame; later rounds = every
- * k-th frame of each trajectory (k = params.every, default 10), starting from frame k-1, at most
- * params.max_frames per trajectory (default unlimited). Selected frames carry `source_artifact`
- * and `source_frame` info keys so lineage reaches single frames.
- */
-export const placeholderSamplePolicy: SamplePolicy = async (req) => {
-  const every = positiveInt(req.params.every, 10);
-  const cap = positiveInt(req.params.max_frames, Number.POSITIVE_INFINITY);
-  const conditions: NonNullable<SampleOutcome['conditions']> = {};
-  let written = 0;
-  async function* frames(): AsyncGenerator<Frame> {
-    for (const src of req.sources) {
-      let index = 0;
-      let selected = 0;
-      for await (const f of readFrames(src.path)) {
-        const take = req.kind === 'start' || ((index + 1) % every === 0 && selected < cap);
-        if (take) {
-          f.info.set('source_artifact', src.artifact);
-          f.info.set('source_frame', index);
-          selected++;
-          written++;
-          yield f;
-        }
-        index++;
-      }
-      conditions[src.condition ?? basename(src.path)] = { frames: index, selected };
-    }
-  }
-  await writeFrames(req.output, frames());
-  return { frames: written, conditions, notes: ['placeholder sample policy: no committee-based selection'] };
-};
-
-function positiveInt(v: unknown, dflt: number): number {
-  return typeof v === 'number' && Number.isInteger(v) && v > 0 ? v : dflt;
-}
-
-/** The policy the sample stage uses. Issue 4 (src/select/) replaces this assignment. */
-export const samplePolicy: SamplePolicy = placeholderSamplePolicy;
+/** The policy the sample stage uses: committee bands, contacts and farthest-point selection (src/select/policy.ts). */
+export const samplePolicy: SamplePolicy = committeeSamplePolicy;

@@ -36,7 +36,9 @@ start() {
   qconf -Msconf "$WORK/sched" >/dev/null
   qconf -ah "$HOST" >/dev/null 2>&1 || true
   qconf -as "$HOST" >/dev/null 2>&1 || true
-  pgrep -x sge_execd >/dev/null || /usr/sbin/sge_execd
+  # The shepherd closes every possible file descriptor before it starts a job: with the huge open-file
+  # limit of some sandboxes that takes a minute per job, so the exec daemon gets a modest one.
+  pgrep -x sge_execd >/dev/null || (ulimit -n 4096 && /usr/sbin/sge_execd)
   if ! qconf -sp smp >/dev/null 2>&1; then
     printf 'pe_name smp\nslots 999\nuser_lists NONE\nxuser_lists NONE\nstart_proc_args NONE\nstop_proc_args NONE\nallocation_rule $pe_slots\ncontrol_slaves FALSE\njob_is_first_task TRUE\nurgency_slots min\naccounting_summary FALSE\nqsort_args NONE\n' > "$WORK/smp"
     qconf -Ap "$WORK/smp" >/dev/null

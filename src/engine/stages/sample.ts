@@ -1,7 +1,7 @@
 /**
  * sample: one task ("0000") that writes the frames to label this round (frames.xyz).
  * Round 0 reads the campaign's starting structures; later rounds read the previous round's
- * trajectories (one per condition). The choice of frames is the sample policy's (../sample-policy.ts),
+ * trajectories (one per condition; the kept copy where the simulate gate cut one at a contact). The choice of frames is the sample policy's (../sample-policy.ts),
  * run inside ratchet; a campaign may instead give `stages.sample.command`, run like any other task
  * with its sources as inputs source_0, source_1, ...
  * Gate: the frames file exists and is readable; no frame at all in round 0 fails, in later rounds warns.
@@ -11,6 +11,7 @@ import { readJsonMaybe } from '../fsutil.js';
 import { abs, taskDirRel } from '../layout.js';
 import type { SampleOutcome, SampleSource } from '../sample-policy.js';
 import { deriveSeed, runGate, stageOutputs, combine } from './common.js';
+import { TRAJECTORY_KEPT, TRAJECTORY_OUTPUT } from './simulate.js';
 import type { StageContext, StageDef, StagePlan, TaskInput } from './types.js';
 
 export const SAMPLE_TASK = '0000';
@@ -33,20 +34,26 @@ async function sources(ctx: StageContext): Promise<{ kind: 'start' | 'trajectori
     const ids = await registerStarts(ctx);
     return { kind: 'start', list: ctx.view.start.map((p) => ({ path: p, artifact: ids.get(p)! })) };
   }
-  const prev = stageOutputs(ctx, ctx.round - 1, 'simulate', 'trajectory.xyz');
+  // A trajectory the simulate gate cut at its first contact violation is read through its kept copy.
+  const prev = stageOutputs(ctx, ctx.round - 1, 'simulate', TRAJECTORY_OUTPUT);
+  const kept = stageOutputs(ctx, ctx.round - 1, 'simulate', TRAJECTORY_KEPT);
   return {
     kind: 'trajectories',
-    list: prev.map((t) => {
-      if (!t.artifact) throw new Error(`internal: ${t.task} has no registered trajectory`);
-      return { path: t.path, artifact: t.artifact, condition: t.name };
+    list: prev.map((t, k) => {
+      const use = kept[k]?.artifact ? kept[k] : t;
+      if (!use.artifact) throw new Error(`internal: ${t.task} has no registered trajectory`);
+      return { path: use.path, artifact: use.artifact, condition: t.name };
     }),
   };
 }
 
 /** Parameters handed to the policy (or, for a sample command, to task.json). */
 export function sampleParams(ctx: StageContext): Record<string, unknown> {
-  const s = ctx.view.campaign.stages.sample;
-  return { ...s.params, perturb: s.perturb, select: s.select, holdout: ctx.view.campaign.holdout };
+  const c = ctx.view.campaign;
+  const s = c.stages.sample;
+  // What the policy reads (PolicySettings in src/select/policy.ts): selected frames must pass the
+  // same contact limits as the trajectories they come from, and fingerprints use the campaign's species.
+  return { ...s.params, perturb: s.perturb, select: s.select, contacts: c.stages.simulate.contacts, species: c.species, holdout: c.holdout };
 }
 
 export const sample: StageDef = {
