@@ -29,6 +29,7 @@ import { readExitRecordSync, STDERR_FILE, tailLines } from './exit-record.js';
 import { renderScript, RenderError } from './render.js';
 import { SchedulerCli, SchedulerCommandError, type CommandRunner, type CommandSpec } from './scheduler-cli.js';
 import { SCRIPT_FILE } from './task-files.js';
+import { BackendOptionError } from './local.js';
 import { loadTemplates, type ScriptTemplates } from './templates.js';
 
 /** One job as the scheduler reports it, keyed by the id ratchet recorded (array elements included). */
@@ -167,7 +168,7 @@ export class ClusterBackend implements Backend {
   ) {
     this.name = dialect.name;
     const positiveInt = (v: number | undefined, what: string) => {
-      if (v !== undefined && (!Number.isInteger(v) || v < 1)) throw new RenderError('-', what, `expected a whole number of at least 1, found ${v}`);
+      if (v !== undefined && (!Number.isInteger(v) || v < 1)) throw new BackendOptionError(`${what}: expected a whole number of at least 1, found ${v}`);
       return v;
     };
     this.maxArraySize = positiveInt(o.maxArraySize, 'backend.max_array_size') ?? 1000;

@@ -11,9 +11,11 @@ export function register(program: Command): void {
     .option('--backend <name>', "where tasks run (default: the campaign's backend.kind)")
     .option('--jobs <n>', 'tasks at once on the local backend')
     .option('--until <point>', 'stop before a round, a stage of a round or a stage, as for run')
+    .option('--allow-over-budget', 'submit even when the core-hour estimate exceeds the budget (recorded in the ledger)')
+    .option('--follow', "on a cluster backend, keep polling until the stage's tasks end")
     .addHelpText('after', '\nExit codes: 0 finished or advanced, 1 blocked, 2 bad input (including a target that cannot be retried), 130 interrupted.')
-    .action(async (campaign: string, target: string, o: { backend?: string; jobs?: string; until?: string }) => {
-      const r = await runCampaign({ campaign, retry: target, backend: o.backend, jobs: o.jobs, until: o.until, handleSignals: true });
+    .action(async (campaign: string, target: string, o: { backend?: string; jobs?: string; until?: string; allowOverBudget?: boolean; follow?: boolean }) => {
+      const r = await runCampaign({ campaign, retry: target, backend: o.backend, jobs: o.jobs, until: o.until, allowOverBudget: o.allowOverBudget, follow: o.follow, handleSignals: true });
       process.exitCode = r.exitCode;
     });
 }

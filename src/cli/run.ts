@@ -11,10 +11,22 @@ export function register(program: Command): void {
     .option('--jobs <n>', 'tasks at once on the local backend (default: backend.jobs, else the number of cores)')
     .option('--until <point>', 'stop before a round (2), a stage of a round (r1/train) or the next occurrence of a stage (train)')
     .option('--dry-run', 'render the next step\'s scripts into .ratchet/plan/<time>/ and print what would run; runs nothing, writes no ledger event')
+    .option('--preflight', "check the next step's scripts (bash -n, and the scheduler's own check such as sbatch --test-only) and report problems per stage; submits nothing")
+    .option('--allow-over-budget', 'submit even when the core-hour estimate exceeds budget.core_hours or budget.core_hours_per_round (recorded in the ledger)')
     .option('--follow', 'on a cluster backend, keep polling until the stage\'s tasks end (local always waits)')
     .addHelpText('after', '\nExit codes: 0 finished or advanced, 1 blocked by a gate or failed tasks, 2 bad input, 130 interrupted.')
-    .action(async (campaign: string, o: { backend?: string; jobs?: string; until?: string; dryRun?: boolean; follow?: boolean }) => {
-      const r = await runCampaign({ campaign, backend: o.backend, jobs: o.jobs, until: o.until, dryRun: o.dryRun, follow: o.follow, handleSignals: true });
+    .action(async (campaign: string, o: { backend?: string; jobs?: string; until?: string; dryRun?: boolean; follow?: boolean; preflight?: boolean; allowOverBudget?: boolean }) => {
+      const r = await runCampaign({
+        campaign,
+        backend: o.backend,
+        jobs: o.jobs,
+        until: o.until,
+        dryRun: o.dryRun,
+        follow: o.follow,
+        preflight: o.preflight,
+        allowOverBudget: o.allowOverBudget,
+        handleSignals: true,
+      });
       process.exitCode = r.exitCode;
     });
 }

@@ -16,6 +16,7 @@ import type { ConditionFigures } from './stages/simulate.js';
 import type { StageVerdict } from './stages/types.js';
 import { frontier, stageRecord, summarizeStage } from './state.js';
 import { killPoint } from './testhook.js';
+import { decideEnded } from './attempts.js';
 
 export type Outcome =
   | { kind: 'finished'; state: 'converged' | 'exhausted'; round: number; reasons: string[]; holding: string[] }
@@ -69,6 +70,7 @@ export async function advance(engine: Engine, opts: AdvanceOptions = {}): Promis
       await planStage(engine, p.round, p.stage);
       continue;
     }
+    await decideEnded(engine, p.round, p.stage);
     const sum = summarizeStage(st, { attempts: engine.view.stages[p.stage].attempts, restarted: engine.restartedHere });
     switch (sum.phase) {
       case 'ready':
@@ -90,7 +92,7 @@ export async function advance(engine: Engine, opts: AdvanceOptions = {}): Promis
           why: 'tasks',
           reasons: sum.failed.map((t) => {
             const a = t.attempts[t.attempts.length - 1];
-            const why = a.ended?.reason ?? a.ended?.state ?? 'failed';
+            const why = (a.ended?.state !== 'failed' ? a.blocked : undefined) ?? a.ended?.reason ?? a.ended?.state ?? 'failed';
             return `${t.id} (attempt ${a.n}) ${a.ended?.state ?? 'failed'}: ${why}`;
           }),
           tasks: sum.failed.map((t) => t.id),
@@ -156,7 +158,14 @@ async function judgeConvergence(engine: Engine, round: number): Promise<void> {
   const figs = (sim?.figures?.conditions ?? {}) as Record<string, ConditionFigures>;
   const conditions: ConditionBands[] = engine.view.conditions.map((c) => {
     const f = figs[c.name];
-    return { condition: c.name, frames: f?.frames ?? 0, confident: f?.confident ?? 0, informative: f?.informative ?? 0, runaway: f?.runaway ?? 0 };
+    return {
+      condition: c.name,
+      frames: f?.frames ?? 0,
+      confident: f?.confident ?? 0,
+      informative: f?.informative ?? 0,
+      runaway: f?.runaway ?? 0,
+      truncatedAt: f?.truncated?.first_violation_frame ?? null,
+    };
   });
   const val = stageRecord(engine.state, round, 'validate')?.gate;
   const errorsMeasured = val?.gates.some((g) => g.gate === 'errors' && typeof g.figures.frames === 'number' && g.figures.frames > 0) ?? false;

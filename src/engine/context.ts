@@ -45,6 +45,8 @@ export class Engine {
   private interruptWaiters: (() => void)[] = [];
   /** Tasks restarted by the engine itself (cancelled, lost ...) in this process: at most once each. */
   readonly restartedHere = new Set<string>();
+  /** --allow-over-budget: submit over the budget (recorded as budget_overridden). */
+  allowOverBudget = false;
 
   constructor(
     readonly view: CampaignView,

@@ -21,6 +21,7 @@ import { STAGE_DEFS } from './stages/index.js';
 import { current, taskPhase, stageRecord, RERUN_BY_ITSELF, type TaskRecord } from './state.js';
 import { writeFileAtomic } from './fsutil.js';
 import { killPoint } from './testhook.js';
+import { effectiveResources, guardBudget } from './attempts.js';
 
 export function taskDirOf(engine: Engine, t: TaskRecord): string {
   return abs(engine.view.dir, taskDirRel(t.round, t.stage, t.name));
@@ -86,10 +87,13 @@ export async function startTasks(engine: Engine, tasks: TaskRecord[]): Promise<v
     }
     const dir = taskDirOf(engine, t);
     const spec = taskSpec(engine.view, json, dir);
+    spec.resources = effectiveResources(engine.view, t);
     await writeTaskFiles(dir, engine.backend.render(spec), json);
     specs.push(spec);
     byId.set(spec.id, t);
   }
+  const resById = new Map(specs.map((x) => [x.id, x.resources]));
+  if (specs.length > 0) await guardBudget(engine, specs[0].round, tasks[0].stage, specs);
   for (const b of builtin) {
     if (engine.interrupted) return;
     await runBuiltin(engine, b.t, b.json);
@@ -97,7 +101,15 @@ export async function startTasks(engine: Engine, tasks: TaskRecord[]): Promise<v
   if (specs.length === 0) return;
   await engine.backend.submit(specs, async (s: Submission) => {
     const t = byId.get(s.id)!;
-    await engine.append({ type: 'task_submitted', task: s.id, attempt: current(t).n, job_id: s.job_id, backend: engine.backend.name });
+    const r = resById.get(s.id);
+    await engine.append({
+      type: 'task_submitted',
+      task: s.id,
+      attempt: current(t).n,
+      job_id: s.job_id,
+      backend: engine.backend.name,
+      ...(r ? { resources: { walltime_s: r.walltime_s, ...(r.memory_mb !== undefined ? { memory_mb: r.memory_mb } : {}), cpus: r.cpus } } : {}),
+    });
     killPoint('submitted');
   });
 }
@@ -239,7 +251,9 @@ export async function waitForStage(engine: Engine, round: number, stage: Stage, 
     if (!follow && engine.backend.drain === undefined) return { outstanding: left };
     // Poll less often when many tasks run: about one exit-record read per task per 100 ms at most;
     // a cluster (no drain) at most every 2 s (the backend itself spaces out its scheduler calls).
-    const interval = Math.min(5000, Math.max(engine.backend.drain ? 100 : 2000, left / 10));
+    const nextDelay = (engine.backend as { nextPollDelayMs?: () => number }).nextPollDelayMs;
+    const interval =
+      !engine.backend.drain && nextDelay ? nextDelay.call(engine.backend) : Math.min(5000, Math.max(engine.backend.drain ? 100 : 2000, left / 10));
     await Promise.race([sleep(interval), engine.whenInterrupted()]);
   }
   engine.out.endProgress(label);
@@ -275,7 +289,8 @@ export function sleep(ms: number): Promise<void> {
 /** Stop every task of this campaign that is still queued or running, and record how each ended. */
 export async function stopOutstanding(engine: Engine): Promise<string[]> {
   const live = [...engine.state.tasks.values()].filter((t) => taskPhase(t) === 'submitted');
-  if (live.length === 0) return [];
+  // A cluster's jobs stay with the scheduler: an interrupt stops polling only (the next run follows them).
+  if (live.length === 0 || engine.backend.drain === undefined) return [];
   const subs = live.filter((t) => !isBuiltinJob(current(t).job_id)).map((t) => ({ id: t.id, job_id: current(t).job_id!, dir: taskDirOf(engine, t) }));
   await engine.backend.cancel(subs);
   const statuses = await pollTasks(engine, live);

@@ -19,6 +19,7 @@ import { dryRun } from './dryrun.js';
 import { parseUntil, stageId, type Until } from './ids.js';
 import { Output } from './output.js';
 import { reconcile } from './reconcile.js';
+import { preflightNextStep } from './preflight-step.js';
 import { applyRetry, planRetry, type RetryPlan } from './retry.js';
 import { samplePolicy as defaultPolicy, type SamplePolicy } from './sample-policy.js';
 import { foldEvents } from './state.js';
@@ -43,6 +44,10 @@ export interface RunOptions {
   error?: (message: string) => void;
   /** Install SIGINT/SIGTERM handlers (the CLI does; tests calling the library need not). */
   handleSignals?: boolean;
+  /** Check the next step's scripts with the backend's preflight; submit nothing (exit 1 with problems). */
+  preflight?: boolean;
+  /** Submit even when the core-hour budget would be exceeded (recorded as budget_overridden). */
+  allowOverBudget?: boolean;
   /** Replace the sample policy (tests). */
   samplePolicy?: SamplePolicy;
 }
@@ -117,6 +122,10 @@ export async function runCampaign(opts: RunOptions): Promise<RunResult> {
       error('--dry-run cannot be combined with retry: a retry writes to the ledger');
       return { exitCode: 2 };
     }
+    if (opts.preflight) {
+      error('--dry-run and --preflight: choose one (--preflight checks the next step with the scheduler, --dry-run only renders it)');
+      return { exitCode: 2 };
+    }
     return dryRun({ view: prep.view, backend, out, error, until, samplePolicy: policy, campaignArg: opts.campaign });
   }
 
@@ -136,6 +145,8 @@ export async function runCampaign(opts: RunOptions): Promise<RunResult> {
   }
   const view = bringInputsInside(prep.view, false);
   const engine = new Engine(view, journal, foldEvents(journal.history), backend, out, policy);
+  engine.allowOverBudget = opts.allowOverBudget === true;
+  const cluster = backend.drain === undefined;
 
   const handlers: [NodeJS.Signals, () => void][] = [];
   if (opts.handleSignals) {
@@ -146,7 +157,11 @@ export async function runCampaign(opts: RunOptions): Promise<RunResult> {
           process.stderr.write('ratchet: stopping at once\n');
           process.exit(130);
         }
-        out.line(`${sig} received: stopping tasks and recording where they stand (again to quit at once)`);
+        out.line(
+          cluster
+            ? `${sig} received: stopping polling; queued and running jobs stay with the scheduler (again to quit at once)`
+            : `${sig} received: stopping tasks and recording where they stand (again to quit at once)`,
+        );
         engine.interrupt(sig);
       };
       process.on(sig, h);
@@ -160,6 +175,10 @@ export async function runCampaign(opts: RunOptions): Promise<RunResult> {
     // Reconcile first: it only records what already happened (tasks that ended while no run watched).
     const rec = await reconcile(engine);
     let retryPlan: RetryPlan | undefined;
+    if (opts.retry !== undefined && opts.preflight) {
+      error('--preflight cannot be combined with retry: run ratchet run --preflight to check the next step');
+      return { exitCode: 2 };
+    }
     if (opts.retry !== undefined) {
       try {
         retryPlan = await planRetry(engine, opts.retry);
@@ -177,6 +196,8 @@ export async function runCampaign(opts: RunOptions): Promise<RunResult> {
       backend: backend.name,
       jobs: (backend as { jobs?: number }).jobs ?? 0,
       ...(opts.until !== undefined ? { until: opts.until } : {}),
+      ...(opts.preflight ? { preflight: true } : {}),
+      ...(opts.allowOverBudget ? { allow_over_budget: true } : {}),
       host: hostname(),
       pid: process.pid,
       campaign_sha256: view.sha256,
@@ -186,6 +207,11 @@ export async function runCampaign(opts: RunOptions): Promise<RunResult> {
     const found = Object.entries(rec.ended).map(([s, n]) => `${n} ${s}`);
     if (found.length) out.line(`reconciled: ${found.join(', ')} since the last run`);
     if (rec.live) out.line(`${rec.live} task(s) of an earlier run still running; waiting for them`);
+    if (opts.preflight) {
+      exitCode = await preflightNextStep(engine);
+      await engine.append({ type: 'run_ended', outcome: exitCode === 0 ? 'stopped' : 'blocked', exit_code: exitCode });
+      return { exitCode };
+    }
     if (retryPlan) {
       const marks = await applyRetry(engine, retryPlan);
       if (marks.regate) out.line(`${marks.regate}: no failed task; its gate will judge it again`);

@@ -26,6 +26,12 @@ export interface Attempt {
   reason?: string;
   /** Asked for by `ratchet retry` (the count of failed attempts starts again here). */
   manual?: boolean;
+  /** Resources changed for this attempt by an escalation (task_retry.resources). */
+  changed?: { walltime_s?: number; memory_mb?: number };
+  /** The resources it was submitted with (task_submitted.resources). */
+  resources?: { walltime_s: number; memory_mb?: number; cpus: number };
+  /** Why this attempt's failure blocks the stage (task_blocked). */
+  blocked?: string;
 }
 
 export interface TaskRecord {
@@ -113,6 +119,7 @@ export function applyEvent(s: CampaignState, e: LedgerEvent): CampaignState {
       a.job_id = e.job_id as string;
       a.backend = e.backend as string;
       a.submitted_at = e.at;
+      if (e.resources && typeof e.resources === 'object') a.resources = e.resources as Attempt['resources'];
       break;
     }
     case 'task_ended': {
@@ -126,9 +133,17 @@ export function applyEvent(s: CampaignState, e: LedgerEvent): CampaignState {
       const t = s.tasks.get(e.task as string);
       if (!t) break;
       const n = e.attempt as number;
-      if (currentAttempt(t).n < n) t.attempts.push({ n, reason: e.reason as string, ...(e.manual === true ? { manual: true } : {}) });
+      if (currentAttempt(t).n < n) {
+        const changed = e.resources && typeof e.resources === 'object' ? { changed: e.resources as Attempt['changed'] } : {};
+        t.attempts.push({ n, reason: e.reason as string, ...(e.manual === true ? { manual: true } : {}), ...changed });
+      }
       const st = stageRecord(s, t.round, t.stage);
       if (st) st.gate = undefined;
+      break;
+    }
+    case 'task_blocked': {
+      const t = s.tasks.get(e.task as string);
+      if (t) attemptFor(t, e.attempt as number).blocked = e.reason as string;
       break;
     }
     case 'stage_gated': {
@@ -264,6 +279,7 @@ export function summarizeStage(st: StageRecord | undefined, opts: SummaryOptions
     if (p === 'planned') toStart.push(t);
     else if (p === 'submitted' || p === 'queued' || p === 'running') running.push(t);
     else if (p === 'succeeded') continue;
+    else if (currentAttempt(t).blocked !== undefined) failed.push(t);
     else if (RERUN_BY_ITSELF.has(p)) (opts.restarted?.has(t.id) ? failed : toStart).push(t);
     else (countedFailures(t) < limit ? toStart : failed).push(t);
   }

@@ -15,6 +15,7 @@ import { describeOutcome } from './run.js';
 import type { ConditionFigures } from './stages/simulate.js';
 import { applyEvent, emptyState, frontier, summarizeStage, type CampaignState, type StagePhase, type TaskPhase } from './state.js';
 import { campaignView, type CampaignView } from './view.js';
+import { usage } from './attempts.js';
 
 export interface StageStatus {
   stage: Stage;
@@ -51,6 +52,8 @@ export interface StatusReport {
   conditions: string[];
   blocking?: { stage: string; why: 'tasks' | 'gate'; reasons: string[]; next: string[] };
   last_run?: { command: string; started: string; outcome?: string; exit_code?: number; ended?: string };
+  /** Core-hours used (exit records' end - start x cpus), by round ("r0") and stage ("r0/label"), and the budget. */
+  core_hours: { total: number; by_round: Record<string, number>; by_stage: Record<string, number>; unknown_attempts: number; budget: { core_hours?: number; core_hours_per_round?: number } };
 }
 
 /** Fold a campaign's ledger into its state (streaming; the reducer is O(1) per event). */
@@ -94,6 +97,7 @@ export function buildStatus(view: CampaignView, state: CampaignState, campaignAr
     rounds,
     target: view.target,
     conditions: view.conditions.map((c) => c.name),
+    core_hours: coreHours(view, state),
   };
   if (state.ended) {
     report.ended = { state: state.ended.state, round: state.ended.round, reasons: state.ended.reasons, holding: state.ended.holding };
@@ -115,7 +119,10 @@ export function buildStatus(view: CampaignView, state: CampaignState, campaignAr
         stage,
         why: 'tasks',
         tasks: sum.failed.map((t) => t.id),
-        reasons: sum.failed.map((t) => `${t.id}: ${t.attempts[t.attempts.length - 1].ended?.reason ?? 'failed'}`),
+        reasons: sum.failed.map((t) => {
+          const a = t.attempts[t.attempts.length - 1];
+          return `${t.id}: ${(a.ended?.state !== 'failed' ? a.blocked : undefined) ?? a.ended?.reason ?? 'failed'}`;
+        }),
       };
     } else if (sum.phase === 'blocked') {
       o = { kind: 'blocked', round, stage, why: 'gate', tasks: [], reasons: st?.gate?.reasons ?? [] };
@@ -207,7 +214,7 @@ export function formatStatus(r: StatusReport, out: Output): void {
   if (withConditions.length) {
     out.line('');
     out.line(`confident fraction per condition (target ${r.target}):`);
-    const width = Math.max(8, ...r.conditions.map((c) => c.length + 2));
+    const width = Math.max(10, ...r.conditions.map((c) => c.length + 2));
     out.line(pad('', 7) + r.conditions.map((c) => pad(c, width)).join(''));
     for (const rr of withConditions) {
       out.line(
@@ -216,12 +223,16 @@ export function formatStatus(r: StatusReport, out: Output): void {
             .map((c) => {
               const f = rr.conditions![c];
               const v = f?.confident_fraction;
-              return pad(v === null || v === undefined ? '-' : v.toFixed(3), width);
+              const cut = f?.truncated ? ' cut' : '';
+              return pad((v === null || v === undefined ? '-' : v.toFixed(3)) + cut, width);
             })
             .join(''),
       );
     }
+    if (withConditions.some((rr) => Object.values(rr.conditions!).some((f) => f.truncated)))
+      out.line('  cut: the trajectory was cut at its first contact violation; the fraction is over the frames kept, and the condition cannot converge that round');
   }
+  formatCoreHours(r, out);
   out.line('');
   if (r.ended) {
     out.line(`campaign ${out.word(r.ended.state)} in round ${r.ended.round}${r.ended.holding.length ? `; held back by ${r.ended.holding.join(', ')}` : ''}`);
@@ -279,3 +290,37 @@ function oneLine(s: string, max = 160): string {
   return l.length > max ? `${l.slice(0, max)}…` : l;
 }
 
+
+const round3 = (h: number): number => Math.round(h * 1000) / 1000;
+
+function coreHours(view: CampaignView, state: CampaignState): StatusReport['core_hours'] {
+  const u = usage(view, state);
+  const b = view.campaign.budget;
+  return {
+    total: round3(u.total),
+    by_round: Object.fromEntries([...u.byRound].sort((x, y) => x[0] - y[0]).map(([k, v]) => [`r${k}`, round3(v)])),
+    by_stage: Object.fromEntries([...u.byStage].map(([k, v]) => [k, round3(v)])),
+    unknown_attempts: u.unknown,
+    budget: { ...(b.core_hours !== undefined ? { core_hours: b.core_hours } : {}), ...(b.core_hours_per_round !== undefined ? { core_hours_per_round: b.core_hours_per_round } : {}) },
+  };
+}
+
+/** Core-hours used per round and stage, with the budget when one is set. */
+function formatCoreHours(r: StatusReport, out: Output): void {
+  const c = r.core_hours;
+  const rounds = Object.keys(c.by_round);
+  if (rounds.length === 0 && c.budget.core_hours === undefined && c.budget.core_hours_per_round === undefined) return;
+  const f = (h: number): string => (h < 10 ? h.toFixed(3) : h.toFixed(1));
+  out.line('');
+  const caps = [
+    c.budget.core_hours !== undefined ? `campaign budget ${c.budget.core_hours}` : '',
+    c.budget.core_hours_per_round !== undefined ? `per round ${c.budget.core_hours_per_round}` : '',
+  ].filter(Boolean);
+  out.line(`core-hours used: ${f(c.total)}${caps.length ? ` (${caps.join(', ')})` : ''}${c.unknown_attempts ? `; ${c.unknown_attempts} attempt(s) without an exit record not counted` : ''}`);
+  for (const rk of rounds) {
+    const parts = STAGES.map((s) => [s, c.by_stage[`${rk}/${s}`]] as const)
+      .filter(([, h]) => h !== undefined)
+      .map(([s, h]) => `${s} ${f(h!)}`);
+    out.line(`  ${pad(rk, 5)} ${pad(f(c.by_round[rk]), 8)} ${parts.join(', ')}`);
+  }
+}

@@ -9,6 +9,8 @@ export interface ConditionBands {
   confident: number;
   informative: number;
   runaway: number;
+  /** The frame where the simulate gate cut this condition's trajectory at a contact violation, if it did. */
+  truncatedAt?: number | null;
 }
 
 export interface ConvergenceInput {
@@ -43,6 +45,8 @@ export function assessConvergence(input: ConvergenceInput): Convergence {
     if (c.frames === 0) problems.push('no frames');
     else if (f < input.target) problems.push(`confident fraction ${f.toFixed(3)} < ${input.target}`);
     if (c.runaway > 0) problems.push(`${c.runaway} runaway frame${c.runaway === 1 ? '' : 's'}`);
+    if (typeof c.truncatedAt === 'number')
+      problems.push(`its run was cut at frame ${c.truncatedAt} because two atoms came too close, so it did not finish`);
     if (problems.length > 0) {
       holding.push(c.condition);
       reasons.push(`${c.condition}: ${problems.join(', ')}`);

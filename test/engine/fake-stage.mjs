@@ -7,6 +7,7 @@
 //   fail-once-<stage>-<task>  exit 3 and delete the flag (the next attempt succeeds)
 //   nan-<stage>-<task>        write a non-finite energy into the first frame (label)
 //   skip-<stage>-<task>       exit 0 without writing the output
+//   contact-<stage>-<task>    two atoms 0.5 Å apart from frame 6 on (simulate)
 //   sleep-<stage>             sleep that many seconds (file content) before working
 import { appendFileSync, existsSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
@@ -119,6 +120,8 @@ if (mode === 'label') {
   let text = '';
   for (let s = 0; s < 10; s++) {
     const moved = { ...fr, pos: fr.pos.map((p, a) => p.map((x, k) => x + 1e-4 * temp * Math.cos(s * 1.3 + a + 2 * k))) };
+    // contact-simulate-<task>: from frame 6 on, atom 1 sits 0.5 Å from atom 0 (a contact violation).
+    if (s >= 6 && existsSync(flag('contact'))) moved.pos[1] = [moved.pos[0][0] + 0.5, moved.pos[0][1], moved.pos[0][2]];
     const props = Array.from({ length: m }, (_, j) => `forces_${j}:R:3`);
     text += frameText(moved, props, (a) => Array.from({ length: m }, (_, j) => [j * delta, 0, 0.001 * a]).flat(), `energy=${num(-1.2)} time=${s * 10}`);
   }

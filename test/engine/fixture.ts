@@ -81,8 +81,10 @@ conditions:
     steps: 10
 stages:
   sample:
-    params:
-      every: 5
+    perturb:
+      count: 1
+    select:
+      max_per_condition: 2
   label:
     command: ${cmd('label')}
     frames_per_task: ${o.framesPerTask ?? 2}

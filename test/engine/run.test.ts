@@ -120,17 +120,19 @@ import sys
 from ase.io import read
 train = read(sys.argv[1], index=':')
 traj = read(sys.argv[2], index=':')
-print(len(train), train[0].get_potential_energy() is not None, train[0].get_forces().shape[0], len(traj), 'forces_1' in traj[0].arrays)
+print(len(train), train[0].get_potential_energy() is not None, train[0].get_forces().shape[0], len(traj), 'forces_1' in traj[0].arrays, 'source_frame' in traj[0].info)
 `;
     const res = execFileSync('/usr/bin/python3', ['-c', py, join(dir, 'rounds/r1/label/train.xyz'), join(dir, 'rounds/r1/sample/0000/frames.xyz')], { encoding: 'utf8' });
-    const [n, hasE, atoms, trajFrames, hasF1] = res.trim().split(/\s+/);
+    const [n, hasE, atoms, trajFrames, hasF1, hasSource] = res.trim().split(/\s+/);
     const check = JSON.parse(readFileSync(join(dir, 'rounds/r1/label/check.json'), 'utf8'));
     expect(Number(n)).toBe(check.train_frames);
     expect(hasE).toBe('True');
     expect(Number(atoms)).toBe(4);
-    // The placeholder policy took frames 4 and 9 of each of the two trajectories; they keep the committee's forces.
+    // The committee policy picked stages.sample.select.max_per_condition = 2 informative frames from each
+    // of the two trajectories; the model's forces are stripped for labeling, the provenance is kept.
     expect(Number(trajFrames)).toBe(4);
-    expect(hasF1).toBe('True');
+    expect(hasF1).toBe('False');
+    expect(hasSource).toBe('True');
     // Cumulative data set: round 1's train + test holds every frame labeled so far (6 + 4).
     expect(check.train_frames + check.test_frames).toBe(10);
   });

@@ -36,4 +36,20 @@ describe('convergence', () => {
     expect(r.state).toBe('exhausted');
     expect(r.holding).toEqual(['90K', '120K']);
   });
+
+  it('does not count a condition whose run was cut at a contact, however confident its kept frames', () => {
+    // Design rule of ratchet (issue 4): a truncated trajectory did not explore the whole condition.
+    const r = assessConvergence({
+      round: 1,
+      maxRounds: 6,
+      target: 0.99,
+      validationPassed: true,
+      conditions: [cond('30K', 100, 100), { ...cond('120K', 40, 40), truncatedAt: 40 }],
+    });
+    expect(r.state).toBe('continue');
+    expect(r.holding).toEqual(['120K']);
+    expect(r.reasons[0]).toBe('120K: its run was cut at frame 40 because two atoms came too close, so it did not finish');
+    const none = assessConvergence({ round: 1, maxRounds: 6, target: 0.99, validationPassed: true, conditions: [{ ...cond('30K', 100, 100), truncatedAt: null }] });
+    expect(none.state).toBe('converged');
+  });
 });

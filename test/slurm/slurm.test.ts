@@ -111,6 +111,22 @@ describe.skipIf(!installed)('real Slurm 22.05', () => {
     tasks.forEach((t) => expect(readFileSync(join(t.dir, 'out.txt'), 'utf8')).toBe(`${t.id}\n`));
   });
 
+  it('submits a stage of 200 tasks as one throttled array, polls it in one call, cancels it', async () => {
+    const b = backend({ arrayThrottle: 5, pollIntervalS: 0 });
+    const root = tempDir();
+    const tasks = Array.from({ length: 200 }, (_, i) => writeTask(b, task(root, String(i).padStart(4, '0'), { command: 'sleep 30', resources: { ...small, walltime_s: 300 } })));
+    const subs = await submit(b, tasks);
+    expect(b.cli.calls.get('sbatch')).toBe(1);
+    const squeueBefore = b.cli.calls.get('squeue') ?? 0;
+    const st = await b.poll(subs);
+    expect((b.cli.calls.get('squeue') ?? 0) - squeueBefore).toBe(1);
+    expect(st.every((s) => s.state === 'queued' || s.state === 'running')).toBe(true);
+    expect(st.filter((s) => s.state === 'running').length).toBeLessThanOrEqual(5);
+    await b.cancel(subs);
+    const after = await settle(b, subs, 60_000);
+    expect(new Set(after.map((s) => s.state))).toEqual(new Set(['cancelled']));
+  });
+
   it('asks the scheduler once per poll cycle, whatever the number of jobs', async () => {
     const b = backend({ pollIntervalS: 0 });
     const root = tempDir();

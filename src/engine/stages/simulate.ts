@@ -2,25 +2,61 @@
  * simulate: one MD task per exploration condition (the task is named after the condition), driven by
  * the committee (model_0 ...), from the condition's start structure, writing trajectory.xyz with every
  * member's forces as forces_0 ... forces_{M-1}. The next round's sample reads these trajectories.
- * Gate: `contacts` (stages.simulate.contacts) and `committee` (the sample window) on every trajectory.
- * Runaway frames warn rather than fail here: finding where the committee is lost is what exploration
- * is for; the next round's selection keeps them out of labeling. Each condition's confident fraction
- * goes into the verdict's figures (for convergence and `ratchet status`).
+ *
+ * Truncation at a contact: after the tasks end, `collect` looks for each trajectory's first frame with
+ * a contact violation (or non-finite positions). Where there is one, the run had left physical ground
+ * from there on: the frames before it are written to trajectory.kept.xyz, registered as an artifact
+ * made from the raw trajectory, and everything downstream (the committee bands here, the next round's
+ * sample) reads the kept copy. The raw trajectory stays as the task wrote it.
+ *
+ * Gate: `contacts` (stages.simulate.contacts) on every raw trajectory, where a violation is a warning
+ * that names the cut (frame, frames kept), not a failure, unless no frame at all comes before it; and
+ * `committee` (the sample window) on what is kept. Runaway frames warn rather than fail here: finding
+ * where the committee is lost is what exploration is for; the next round's selection keeps them out of
+ * labeling. Each condition's confident fraction, and its cut if any, go into the verdict's figures (for
+ * convergence and `ratchet status`); a condition whose trajectory was cut cannot converge that round.
  */
+import { readFrames } from '../../atoms/xyz/reader.js';
+import { formatFrame } from '../../atoms/xyz/writer.js';
 import { checkCommittee } from '../../gates/committee.js';
-import { checkContacts } from '../../gates/contacts.js';
+import { checkContacts, type ContactsFigures } from '../../gates/contacts.js';
+import type { GateResult } from '../../gates/types.js';
 import type { GateRecord } from '../events.js';
+import { exists, writeFileAtomic } from '../fsutil.js';
 import { artifactIds, combine, deriveSeed, modelInputs, runGate, stageOutputs, unique } from './common.js';
-import type { PlannedTask, StageDef, StagePlan } from './types.js';
+import type { PlannedTask, StageContext, StageDef, StagePlan } from './types.js';
 
 export const TRAJECTORY_OUTPUT = 'trajectory.xyz';
+/** The frames of a trajectory before its first contact violation (written only when there is one). */
+export const TRAJECTORY_KEPT = 'trajectory.kept.xyz';
 
 export interface ConditionFigures {
+  /** Frames judged by the committee gate (the kept ones). */
   frames: number;
   confident: number;
   informative: number;
   runaway: number;
   confident_fraction: number | null;
+  /** Present when the trajectory was cut: its first contact violation, frames written and kept. */
+  truncated?: Truncation;
+}
+
+export interface Truncation {
+  condition: string;
+  first_violation_frame: number;
+  frames_written: number;
+  frames_kept: number;
+}
+
+function contactOptions(ctx: StageContext) {
+  const c = ctx.view.campaign.stages.simulate.contacts;
+  return { scale: c.scale, pairLimits: c.min_distance };
+}
+
+/** First frame with a contact violation or non-finite positions, or null. */
+function firstCut(f: ContactsFigures): number | null {
+  const cands = [f.first_violation_frame, f.first_bad_frame].filter((x): x is number => typeof x === 'number');
+  return cands.length ? Math.min(...cands) : null;
 }
 
 export const simulate: StageDef = {
@@ -48,34 +84,104 @@ export const simulate: StageDef = {
     return { tasks, inputs: unique(tasks.flatMap((t) => artifactIds(t.inputs))), artifacts: [] };
   },
 
+  /** Write and register the kept copy of every trajectory with a contact violation (idempotent). */
+  async collect(ctx) {
+    for (const t of stageOutputs(ctx, ctx.round, 'simulate', TRAJECTORY_OUTPUT)) {
+      let figures: ContactsFigures;
+      try {
+        figures = (await checkContacts([t.path], contactOptions(ctx))).figures;
+      } catch {
+        continue; // unreadable: the gate reports it
+      }
+      const cut = firstCut(figures);
+      if (cut === null || cut === 0) continue;
+      const kept: string[] = [];
+      let index = 0;
+      for await (const f of readFrames(t.path)) {
+        if (index++ >= cut) break;
+        kept.push(formatFrame(f));
+      }
+      const path = t.path.slice(0, -TRAJECTORY_OUTPUT.length) + TRAJECTORY_KEPT;
+      const content = kept.join('');
+      await writeFileAtomic(path, content);
+      await ctx.register({
+        path,
+        role: 'trajectory_kept',
+        inputs: t.artifact ? [t.artifact] : [],
+        task: t.task,
+        command: `ratchet simulate gate: frames before the first contact violation (frame ${cut})`,
+        content,
+      });
+    }
+  },
+
   async gate(ctx) {
     const c = ctx.view.campaign;
     const window = c.stages.sample.select.window;
     const gates: GateRecord[] = [];
     const conditions: Record<string, ConditionFigures> = {};
-    for (const t of stageOutputs(ctx, ctx.round, 'simulate', TRAJECTORY_OUTPUT)) {
-      gates.push(
-        await runGate('contacts', t.task, () =>
-          checkContacts([t.path], { scale: c.stages.simulate.contacts.scale, pairLimits: c.stages.simulate.contacts.min_distance }),
-        ),
-      );
-      const com = await runGate('committee', t.task, () =>
-        checkCommittee([t.path], { lower: window.lower, upper: window.upper, models: ctx.view.committee, maxRunawayFraction: 1 }),
-      );
-      gates.push(com);
-      const bands = com.figures.bands as { confident: number; informative: number; runaway: number } | undefined;
-      const frames = (com.figures.frames as number | undefined) ?? 0;
+    const truncated: Truncation[] = [];
+    const kept = stageOutputs(ctx, ctx.round, 'simulate', TRAJECTORY_KEPT);
+    const outs = stageOutputs(ctx, ctx.round, 'simulate', TRAJECTORY_OUTPUT);
+    for (const [k, t] of outs.entries()) {
+      const seen: { cut: number | null; written: number } = { cut: null, written: 0 };
+      const con = await runGate('contacts', t.task, async (): Promise<GateResult<ContactsFigures>> => {
+        const r = await checkContacts([t.path], contactOptions(ctx));
+        const cut = firstCut(r.figures);
+        const written = r.figures.frames;
+        seen.cut = cut;
+        seen.written = written;
+        if (cut === null) return r;
+        // A contact ends the usable part of the run: keep what came before, judge that, and go on.
+        const reasons =
+          cut === 0
+            ? [`the first frame already has a contact violation: no frame is usable (${r.reasons.join('; ')})`]
+            : [
+                `trajectory cut at its first contact violation, frame ${cut}: ${cut} of ${written} frame(s) kept in ${TRAJECTORY_KEPT}` +
+                  (r.reasons[0] ? ` (${r.reasons[0]})` : ''),
+              ];
+        return { ...r, verdict: cut === 0 ? 'fail' : 'warn', reasons };
+      });
+      gates.push(con);
+      const { cut, written } = seen;
+      const truncation: Truncation | undefined =
+        cut === null ? undefined : { condition: t.name, first_violation_frame: cut, frames_written: written, frames_kept: cut };
+      if (truncation) truncated.push(truncation);
+      let judged: string | undefined = t.path;
+      if (truncation) {
+        const keptPath = kept[k];
+        judged = cut !== 0 && keptPath?.artifact && (await exists(keptPath.path)) ? keptPath.path : undefined;
+        if (cut !== 0 && judged === undefined) {
+          gates.push({ gate: 'outputs', task: t.task, verdict: 'fail', reasons: [`${TRAJECTORY_KEPT} was not written`], figures: {} });
+        }
+      }
+      let bands: { confident: number; informative: number; runaway: number } | undefined;
+      let frames = 0;
+      if (judged !== undefined) {
+        const path = judged;
+        const com = await runGate('committee', t.task, () =>
+          checkCommittee([path], { lower: window.lower, upper: window.upper, models: ctx.view.committee, maxRunawayFraction: 1 }),
+        );
+        gates.push(com);
+        bands = com.figures.bands as typeof bands;
+        frames = (com.figures.frames as number | undefined) ?? 0;
+      }
       conditions[t.name] = {
         frames,
         confident: bands?.confident ?? 0,
         informative: bands?.informative ?? 0,
         runaway: bands?.runaway ?? 0,
         confident_fraction: bands && frames > 0 ? bands.confident / frames : null,
+        ...(truncation ? { truncated: truncation } : {}),
       };
     }
     const summary = Object.entries(conditions)
-      .map(([name, f]) => `${name}: ${f.frames} frames, ${f.confident} confident, ${f.informative} informative, ${f.runaway} runaway`)
+      .map(
+        ([name, f]) =>
+          `${name}: ${f.frames} frames, ${f.confident} confident, ${f.informative} informative, ${f.runaway} runaway` +
+          (f.truncated ? ` (cut at frame ${f.truncated.first_violation_frame} by a contact)` : ''),
+      )
       .join('; ');
-    return { ...combine(gates, { conditions }), summary };
+    return { ...combine(gates, truncated.length ? { conditions, truncated } : { conditions }), summary };
   },
 };

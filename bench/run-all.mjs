@@ -1,0 +1,31 @@
+#!/usr/bin/env node
+/**
+ * Runs every benchmark in turn (after `npm run build`, which `npm run bench` does first).
+ * Each prints its own table; bench/RESULTS.md records figures with the command that produced them.
+ * Pass names to run only some: node bench/run-all.mjs neighbours ledger
+ */
+import { spawnSync } from 'node:child_process';
+import { fileURLToPath } from 'node:url';
+
+const root = fileURLToPath(new URL('..', import.meta.url));
+const tsx = ['--import', 'tsx'];
+const benches = {
+  xyz: ['bench/xyz-bench.mjs'],
+  neighbours: ['bench/neighbours.mjs'],
+  ledger: ['bench/ledger.mjs'],
+  render: [...tsx, 'bench/render.ts'],
+  engine: [...tsx, 'bench/engine.ts'],
+  scheduler: [...tsx, 'bench/scheduler-calls.ts'],
+};
+const wanted = process.argv.slice(2);
+let failed = 0;
+for (const [name, args] of Object.entries(benches)) {
+  if (wanted.length && !wanted.includes(name)) continue;
+  console.log(`\n== ${name}: node ${args.join(' ')}`);
+  const r = spawnSync(process.execPath, args, { cwd: root, stdio: 'inherit' });
+  if (r.status !== 0) {
+    console.error(`bench ${name} exited with ${r.status}`);
+    failed++;
+  }
+}
+process.exitCode = failed ? 1 : 0;
