@@ -291,15 +291,15 @@ function oneLine(s: string, max = 160): string {
 }
 
 
-const round3 = (h: number): number => Math.round(h * 1000) / 1000;
+const round6 = (h: number): number => Math.round(h * 1e6) / 1e6;
 
 function coreHours(view: CampaignView, state: CampaignState): StatusReport['core_hours'] {
   const u = usage(view, state);
   const b = view.campaign.budget;
   return {
-    total: round3(u.total),
-    by_round: Object.fromEntries([...u.byRound].sort((x, y) => x[0] - y[0]).map(([k, v]) => [`r${k}`, round3(v)])),
-    by_stage: Object.fromEntries([...u.byStage].map(([k, v]) => [k, round3(v)])),
+    total: round6(u.total),
+    by_round: Object.fromEntries([...u.byRound].sort((x, y) => x[0] - y[0]).map(([k, v]) => [`r${k}`, round6(v)])),
+    by_stage: Object.fromEntries([...u.byStage].map(([k, v]) => [k, round6(v)])),
     unknown_attempts: u.unknown,
     budget: { ...(b.core_hours !== undefined ? { core_hours: b.core_hours } : {}), ...(b.core_hours_per_round !== undefined ? { core_hours_per_round: b.core_hours_per_round } : {}) },
   };
@@ -310,7 +310,7 @@ function formatCoreHours(r: StatusReport, out: Output): void {
   const c = r.core_hours;
   const rounds = Object.keys(c.by_round);
   if (rounds.length === 0 && c.budget.core_hours === undefined && c.budget.core_hours_per_round === undefined) return;
-  const f = (h: number): string => (h < 10 ? h.toFixed(3) : h.toFixed(1));
+  const f = (h: number): string => (h === 0 ? '0' : h < 1 ? h.toPrecision(2) : h.toFixed(1));
   out.line('');
   const caps = [
     c.budget.core_hours !== undefined ? `campaign budget ${c.budget.core_hours}` : '',
