@@ -22,7 +22,7 @@ export function perturbFrame(frame: Frame, opts: PerturbOptions, rng: Random): F
     for (let a = 0; a < 3; a++)
       for (let b = a; b < 3; b++) {
         if (!frame.pbc[a] || !frame.pbc[b]) continue;
-        const v = (2 * rng.next() - 1) * opts.strain;
+        const v = (2 * rng.uniform() - 1) * opts.strain;
         e[3 * a + b] = v;
         e[3 * b + a] = v;
       }

@@ -31,7 +31,7 @@ describe('farthest-point selection', () => {
     const trials = 200;
     for (let t = 0; t < trials; t++) {
       const pick = new Set<number>();
-      while (pick.size < 3) pick.add(rng.int(pts.length));
+      while (pick.size < 3) pick.add(rng.integer(pts.length));
       sum += minimumSeparation(pts, [...pick]);
     }
     expect(fps).toBeGreaterThan(5);
@@ -40,7 +40,7 @@ describe('farthest-point selection', () => {
 
   it('satisfies the greedy max–min property at every step (checked by brute force)', () => {
     const rng = seededRandom('greedy');
-    const pts = Array.from({ length: 60 }, () => [rng.next(), rng.next(), rng.next(), rng.next()]);
+    const pts = Array.from({ length: 60 }, () => [rng.uniform(), rng.uniform(), rng.uniform(), rng.uniform()]);
     const chosen = farthestPointSelect(pts, 10, 7);
     expect(chosen[0]).toBe(7);
     expect(new Set(chosen).size).toBe(10);

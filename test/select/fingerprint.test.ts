@@ -79,10 +79,10 @@ describe('picking informative frames', () => {
     const rng = seededRandom('pick');
     const bands = ['confident', 'informative', 'runaway'] as const;
     const cands: Candidate[] = Array.from({ length: 300 }, (_, i) => ({
-      spread: rng.next(),
+      spread: rng.uniform(),
       band: bands[i % 3],
       sane: i % 7 !== 0,
-      fingerprint: [rng.next(), rng.next()],
+      fingerprint: [rng.uniform(), rng.uniform()],
     }));
     const r = pickInformative(cands, 20);
     expect(r.picked.length).toBe(20);

@@ -7,7 +7,7 @@ function randomFrame(seed: number): Frame {
   const rng = seededRandom(seed);
   return {
     species: ['Ar', 'Ar', 'Ar'],
-    positions: Float64Array.from({ length: 9 }, () => 10 * rng.next()),
+    positions: Float64Array.from({ length: 9 }, () => 10 * rng.uniform()),
     cell: Float64Array.from([10, 0, 0, 0, 10, 0, 0, 0, 10]),
     pbc: [true, true, true],
     arrays: new Map(),

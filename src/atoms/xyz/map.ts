@@ -4,8 +4,8 @@
  * With workers = n > 1 the calling thread reads the file (inflating gzip itself: a gzip stream cannot
  * be split by offset), finds frame boundaries with a native newline scan and groups whole frames into
  * batches; n - 1 worker threads get batches copied into recycled buffers (transferred, not cloned) and
- * parse only the requested columns and apply the function; when they all have 2 batches queued, the
- * calling thread parses the next batch itself. At most 2 batches per worker are in flight
+ * parse only the requested columns and apply the function; when they all have MAX_QUEUED batches queued,
+ * the calling thread parses the next batch itself. At most MAX_QUEUED (4) batches per worker are in flight
  * (backpressure), so memory stays bounded whatever the file size. Errors surface as the same XyzError
  * (file and absolute line) as the sequential reader gives, and the first error in file order wins.
  * Small files (under 2 batches) are read on the calling thread only.
@@ -57,6 +57,11 @@ export interface MapStats {
 export let lastMapStats: MapStats = { mode: 'sequential', batches: 0, maxInFlight: 0 };
 
 const DEFAULT_BATCH = 2 << 20;
+/**
+ * Batches queued per worker thread: enough to hide the latency of waking a thread (a 2 MiB batch is
+ * parsed in 2-4 ms), few enough to bound memory (MAX_QUEUED x 4 MiB recycled buffers per worker).
+ */
+export const MAX_QUEUED = 4;
 const TS_FILE = /\.[mc]?tsx?$/;
 
 type JobFn<R> = (frame: Frame, index: number, options: unknown) => R | Promise<R>;
@@ -153,8 +158,8 @@ interface Slot {
 
 /**
  * The parallel path: `threads` parsing threads, the calling thread included. The calling thread reads
- * and scans the file; each batch of whole frames goes to a worker thread that has fewer than 2 batches
- * queued, or, when all are busy, is parsed right here (so that on 2 cores, 2 threads share the work and
+ * and scans the file; each batch of whole frames goes to a worker thread that has fewer than MAX_QUEUED
+ * batches queued, or, when all are busy, is parsed right here (so that on 2 cores, 2 threads share the work and
  * no core is oversubscribed by a thread that only waits).
  */
 async function parallel<R>(
@@ -169,7 +174,6 @@ async function parallel<R>(
   const source = await openSource(path);
   const scanner = new FrameScanner(source, path);
   const wanted = job.columns ? new Set(job.columns) : null;
-  const maxPerWorker = 2;
   const slots: Slot[] = [];
   const done = new Map<number, ReplyMessage>();
   const pool: ArrayBuffer[] = [];
@@ -242,7 +246,7 @@ async function parallel<R>(
     let best: Slot | null = null;
     for (;;) {
       if (fatal) throw fatal;
-      for (const s of slots) if (s.outstanding < maxPerWorker && (best === null || s.outstanding < best.outstanding)) best = s;
+      for (const s of slots) if (s.outstanding < MAX_QUEUED && (best === null || s.outstanding < best.outstanding)) best = s;
       if (best !== null) break;
       if (callerParses) {
         callerBatches++;

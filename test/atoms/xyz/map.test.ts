@@ -12,7 +12,7 @@ import { fileURLToPath, pathToFileURL } from 'node:url';
 import { gzipSync } from 'node:zlib';
 import { describe, expect, it } from 'vitest';
 import { XyzError } from '../../../src/atoms/xyz/errors.js';
-import { lastMapStats, mapFrames, type FrameJob } from '../../../src/atoms/xyz/map.js';
+import { lastMapStats, mapFrames, MAX_QUEUED, type FrameJob } from '../../../src/atoms/xyz/map.js';
 import type { Summary } from './jobs.js';
 import { put, rng, tempDir } from './helpers.js';
 
@@ -54,8 +54,9 @@ describe('mapFrames', () => {
         expect(lastMapStats.mode).toBe('parallel');
         expect(lastMapStats.batches).toBeGreaterThan(10);
         if (!callerParses) expect(lastMapStats.callerBatches).toBe(0);
-        // backpressure: at most 2 batches per worker thread in flight
-        expect(lastMapStats.maxInFlight).toBeLessThanOrEqual(2 * (workers - 1));
+        // backpressure: at most MAX_QUEUED batches per worker thread in flight
+        expect(lastMapStats.maxInFlight).toBeLessThanOrEqual(MAX_QUEUED * (workers - 1));
+        expect(lastMapStats.maxInFlight).toBeGreaterThan(0);
         expect(par).toEqual(seq);
       }
     }
