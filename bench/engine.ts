@@ -63,6 +63,7 @@ committee: {size: 2}
 conditions:
   - {name: cold, temperature: 30, steps: 10}
 stages:
+  sample: {perturb: {count: 1}}
   label: {command: ${JSON.stringify(labelCmd)}, frames_per_task: 1}
   train: {command: "true"}
   validate: {command: "true"}
