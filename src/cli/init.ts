@@ -1,6 +1,6 @@
 import type { Command } from 'commander';
+// The command's logic is imported when it runs, so every command starts fast (startup is part of `ratchet check`'s throughput).
 import { relative } from 'node:path';
-import { InitError, writeStarter } from '../campaign/starter.js';
 
 /** `ratchet init [DIR]`: write a commented starter campaign and a tiny starting structure. */
 export function register(program: Command): void {
@@ -9,6 +9,7 @@ export function register(program: Command): void {
     .description('write a commented starter campaign (campaign.yaml) and a small starting structure into DIR')
     .argument('[dir]', 'directory to write into (created when missing)', '.')
     .action(async (dir: string) => {
+      const { InitError, writeStarter } = await import('../campaign/starter.js');
       try {
         const written = await writeStarter(dir);
         const show = (p: string) => {

@@ -1,9 +1,9 @@
-import type { Command } from 'commander';
-import { LineageQueryError, lineageQuery, renderAnswer } from '../ledger/query.js';
+import { InvalidArgumentError, type Command } from 'commander';
+// The command's logic is imported when it runs, so every command starts fast (startup is part of `ratchet check`'s throughput).
 
 function nonNegativeInt(name: string) {
   return (v: string): number => {
-    if (!/^\d+$/.test(v)) throw new LineageQueryError(`${name} expects a whole number >= 0, found "${v}"`);
+    if (!/^\d+$/.test(v)) throw new InvalidArgumentError(`${name} expects a whole number >= 0, found "${v}"`);
     return Number(v);
   };
 }
@@ -20,6 +20,7 @@ export function register(program: Command): void {
     .option('--frame <index>', 'also follow frame INDEX (0-based) back through frame-selection files', nonNegativeInt('--frame'))
     .option('--depth <n>', 'expand the tree at most N levels', nonNegativeInt('--depth'))
     .action(async (target: string, opts: { json?: boolean; campaign?: string; down?: boolean; frame?: number; depth?: number }) => {
+      const { LineageQueryError, lineageQuery, renderAnswer } = await import('../ledger/query.js');
       try {
         const answer = await lineageQuery({
           target,
