@@ -343,6 +343,10 @@ export class ClusterBackend implements Backend {
   }
 
   private async byExitCode(s: Submission, dir: string, rec: ExitRecord, note?: string): Promise<TaskStatus> {
+    // A job this process cancelled may still have run its EXIT trap (qdel/scancel send SIGTERM first,
+    // recorded as 143): that is the cancel, not a failure of the command.
+    if (this.cancelled.has(s.job_id) && rec.exit_code !== 0)
+      return { id: s.id, job_id: s.job_id, state: 'cancelled', exit: rec, reason: `cancelled by ratchet (${describeExitCode(rec.exit_code)})` };
     const tail = await tailLines(join(dir, STDERR_FILE), 20);
     return {
       id: s.id,

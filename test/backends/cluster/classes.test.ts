@@ -272,4 +272,18 @@ describe('poll cycle behaviour (Slurm dialect)', () => {
     expect(fake.log.find((c) => c.cmd === 'scancel')?.args).toEqual(['77_3']);
     expect((await b.poll(sub))[0].state).toBe('cancelled');
   });
+
+  it('reports a job this process cancelled as cancelled even when its trap recorded 143 (SIGTERM, signal(7))', async () => {
+    // Seen with Grid Engine 8.1.9 here: qdel of a running job lets the script's EXIT trap write exit.json.
+    const fake = fakeRunner({ squeue: () => ({ stdout: '' }), scancel: () => ({}), sacct: () => ({ stdout: '', exitCode: 1, stderr: 'Slurm accounting storage is disabled' }), scontrol: () => ({ stdout: 'JobCompType = jobcomp/none\n' }) });
+    const b = new SlurmBackend({ runner: fake.runner });
+    const dir = tempDir();
+    const sub = [{ id: 'a', job_id: '78', dir }];
+    await b.cancel(sub);
+    writeExit(dir, 143, '2026-01-01T00:00:00Z', '2026-01-01T00:00:05Z');
+    expect((await b.poll(sub))[0]).toMatchObject({ state: 'cancelled', reason: expect.stringMatching(/^cancelled by ratchet/) });
+    // the same record without a cancel by this process is a failure of the command
+    const other = new SlurmBackend({ runner: fake.runner });
+    expect((await other.poll(sub))[0].state).toBe('failed');
+  });
 });
