@@ -14,6 +14,7 @@ import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Submission, TaskSpec, TaskStatus } from '../../src/backends/backend.js';
 import { decide } from '../../src/backends/classify.js';
+import { readExitRecord } from '../../src/backends/exit-record.js';
 import { preflight } from '../../src/backends/preflight.js';
 import { SlurmBackend } from '../../src/backends/slurm.js';
 import { removeTempDirs, task, tempDir, writeTask } from '../backends/cluster/helpers.js';
@@ -150,8 +151,14 @@ describe.skipIf(!installed)('real Slurm 22.05', () => {
     await b.cancel(subs);
     const [st] = await settle(b, subs);
     expect(st.state).toBe('cancelled');
-    // The script trapped SIGTERM and wrote its record: 128 + 15.
-    expect(st.exit?.exit_code).toBe(143);
+    // The script trapped SIGTERM and wrote its record: 128 + 15. squeue may show CANCELLED a moment
+    // before the trap has renamed exit.json into place, so wait for the record itself.
+    let rec = st.exit;
+    for (let k = 0; !rec && k < 40; k++) {
+      await new Promise((r) => setTimeout(r, 250));
+      rec = await readExitRecord(t.dir);
+    }
+    expect(rec?.exit_code).toBe(143);
   });
 
   it('reports a job id the scheduler never had as lost', async () => {
