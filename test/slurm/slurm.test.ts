@@ -144,7 +144,9 @@ describe.skipIf(!installed)('real Slurm 22.05', () => {
     const t = writeTask(b, task(tempDir(), '0000', { command: 'sleep 300', resources: { ...small, walltime_s: 600 } }));
     const subs = await submit(b, [t]);
     const until = Date.now() + 60_000;
-    while ((await b.poll(subs))[0].state !== 'running') {
+    // Slurm shows RUNNING while slurmd is still launching the script; cancel only once the script has
+    // set its traps, which it has when it has opened stdout.log (templates/common.sh).
+    while ((await b.poll(subs))[0].state !== 'running' || !existsSync(join(t.dir, 'stdout.log'))) {
       if (Date.now() > until) throw new Error('the job did not start');
       await new Promise((r) => setTimeout(r, 500));
     }
