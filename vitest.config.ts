@@ -6,5 +6,7 @@ export default defineConfig({
     testTimeout: 60_000,
     hookTimeout: 60_000,
     pool: 'forks',
+    // Stops the real Slurm the scheduler suites started (test/slurm/cluster.ts), after all files.
+    globalSetup: ['test/slurm/teardown.ts'],
   },
 });

@@ -16,11 +16,17 @@ const benches = {
   render: [...tsx, 'bench/render.ts'],
   engine: [...tsx, 'bench/engine.ts'],
   scheduler: [...tsx, 'bench/scheduler-calls.ts'],
+  // needs Slurm installed (bash test/slurm/cluster.sh install); starts and stops the test cluster itself
+  slurm: [...tsx, 'bench/slurm-latency.ts'],
 };
 const wanted = process.argv.slice(2);
 let failed = 0;
 for (const [name, args] of Object.entries(benches)) {
   if (wanted.length && !wanted.includes(name)) continue;
+  if (name === 'slurm' && spawnSync('sh', ['-c', 'command -v sbatch && command -v slurmctld']).status !== 0) {
+    console.log('\n== slurm: skipped (Slurm is not installed; bash test/slurm/cluster.sh install)');
+    continue;
+  }
   console.log(`\n== ${name}: node ${args.join(' ')}`);
   const r = spawnSync(process.execPath, args, { cwd: root, stdio: 'inherit' });
   if (r.status !== 0) {

@@ -78,6 +78,8 @@ export interface Submission {
    * cancelling submissions made by an earlier process (after a restart) must set it.
    */
   dir?: string;
+  /** Set when the job was found already queued or running (submitted by a run that crashed before recording it), not submitted now. */
+  adopted?: boolean;
 }
 
 export interface Backend {

@@ -18,11 +18,11 @@
  *     where the dialect has one; else the exit record's code; else `lost` (or `cancelled` when this
  *     process cancelled it).
  */
-import { existsSync } from 'node:fs';
+import { existsSync, readFileSync } from 'node:fs';
 import { userInfo } from 'node:os';
-import { join } from 'node:path';
+import { dirname, join } from 'node:path';
 import type { Backend, ExitRecord, Resources, Submission, TaskSpec, TaskState, TaskStatus } from './backend.js';
-import { planUnits, singleJobName, writeArrayFiles, type SubmissionUnit } from './arrays.js';
+import { ARRAYS_DIR, planUnits, singleJobName, writeArrayFiles, type SubmissionUnit } from './arrays.js';
 import { classifyCommandFailure, describeExitCode, type CommandOutcome } from './classify.js';
 import { DirectiveError, type ArrayRequest, type SchedulerName } from './directives.js';
 import { readExitRecordSync, STDERR_FILE, tailLines } from './exit-record.js';
@@ -215,7 +215,6 @@ export class ClusterBackend implements Backend {
       if (!existsSync(join(t.dir, SCRIPT_FILE))) throw new Error(`task ${t.id}: ${join(t.dir, SCRIPT_FILE)} does not exist (write the task files before submitting)`);
     }
     if (tasks.length === 0) return;
-    const units = this.plan(tasks);
     const ctx = { cli: this.cli, user: this.user };
     let live = new Map<string, string>();
     if (this.adopt) {
@@ -226,8 +225,35 @@ export class ClusterBackend implements Backend {
         // A scheduler that cannot list jobs now will not take submissions either; the submit below says so.
       }
     }
-    for (const unit of units) {
+    // A live array of the same stage folder whose manifest names tasks being submitted now: a run that
+    // crashed after the array was submitted but before all its element ids were recorded. Those tasks
+    // are adopted element by element (their set differs from the array's, so its name does not match).
+    const elements = this.adopt ? liveArrayElements(tasks, live, (id, k) => this.dialect.elementId(id, k)) : new Map<string, string>();
+    if (elements.size > 0) {
+      // Only elements the scheduler still holds (an element of an earlier attempt that has ended is
+      // not adopted). When the scheduler cannot say, adopt: a job that turns out gone is found lost
+      // by the next poll and run again, never twice at once.
+      const v = await this.view([...new Set(elements.values())]);
+      if (v.error === undefined) {
+        for (const [dir, id] of elements) {
+          const job = v.jobs.get(id);
+          if (!job || this.dialect.map(job).final) elements.delete(dir);
+        }
+      }
+    }
+    const fresh: TaskSpec[] = [];
+    for (const t of tasks) {
+      const id = elements.get(t.dir);
+      if (id === undefined) {
+        fresh.push(t);
+        continue;
+      }
+      this.dirs.set(id, t.dir);
+      await onSubmitted({ id: t.id, job_id: id, dir: t.dir, adopted: true });
+    }
+    for (const unit of this.plan(fresh)) {
       let jobId = live.get(unit.name);
+      const adopted = jobId !== undefined;
       if (jobId === undefined) {
         let spec: CommandSpec;
         if (unit.kind === 'array') {
@@ -258,7 +284,7 @@ export class ClusterBackend implements Backend {
         const t = unit.tasks[k];
         const id = unit.kind === 'array' ? this.dialect.elementId(jobId, k + 1) : jobId;
         this.dirs.set(id, t.dir);
-        await onSubmitted({ id: t.id, job_id: id, dir: t.dir });
+        await onSubmitted({ id: t.id, job_id: id, dir: t.dir, ...(adopted ? { adopted: true } : {}) });
       }
     }
   }
@@ -422,4 +448,30 @@ export class ClusterBackend implements Backend {
   }
 
   // No drain(): the engine reads its absence as "tasks run elsewhere; poll, or return and come back".
+}
+
+/**
+ * Task folder -> element id for every task named in the manifest of a live array (by its job name
+ * ending ".a<key>", with the manifest <stage folder>/.arrays/<key>.tasks written when it was submitted).
+ */
+export function liveArrayElements(tasks: TaskSpec[], live: Map<string, string>, elementId: (arrayId: string, index: number) => string): Map<string, string> {
+  const out = new Map<string, string>();
+  if (live.size === 0) return out;
+  for (const base of new Set(tasks.map((t) => dirname(t.dir)))) {
+    for (const [name, id] of live) {
+      const m = /\.a([0-9a-f]+)$/.exec(name);
+      if (!m) continue;
+      let text: string;
+      try {
+        text = readFileSync(join(base, ARRAYS_DIR, `${m[1]}.tasks`), 'utf8');
+      } catch {
+        continue;
+      }
+      text
+        .split('\n')
+        .filter((l) => l !== '')
+        .forEach((folder, k) => out.set(join(base, folder), elementId(id, k + 1)));
+    }
+  }
+  return out;
 }

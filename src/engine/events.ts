@@ -48,6 +48,8 @@ export interface TaskSubmittedEvent {
   attempt: number;
   job_id: string;
   backend: string;
+  /** The job was found queued or running (submitted before a crash), not submitted again. */
+  adopted?: true;
 }
 
 /** A task attempt reached a terminal state. */

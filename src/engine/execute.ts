@@ -108,6 +108,7 @@ export async function startTasks(engine: Engine, tasks: TaskRecord[]): Promise<v
       attempt: current(t).n,
       job_id: s.job_id,
       backend: engine.backend.name,
+      ...(s.adopted ? { adopted: true as const } : {}),
       ...(r ? { resources: { walltime_s: r.walltime_s, ...(r.memory_mb !== undefined ? { memory_mb: r.memory_mb } : {}), cpus: r.cpus } } : {}),
     });
     killPoint('submitted');
@@ -249,11 +250,16 @@ export async function waitForStage(engine: Engine, round: number, stage: Stage, 
     if (left === 0) break;
     if (engine.interrupted) return { outstanding: left };
     if (!follow && engine.backend.drain === undefined) return { outstanding: left };
-    // Poll less often when many tasks run: about one exit-record read per task per 100 ms at most;
-    // a cluster (no drain) at most every 2 s (the backend itself spaces out its scheduler calls).
+    // Poll less often when many tasks run: about one exit-record read per task per 100 ms at most
+    // (local). On a cluster the exit records are read every 2 s, or every 10 ms per outstanding task
+    // when more (a stat and a small read each, on the shared file system), so a stage advances soon
+    // after its last task ends; the backend asks the scheduler itself only once per poll interval
+    // (its answer is cached in between), so this costs no scheduler calls.
     const nextDelay = (engine.backend as { nextPollDelayMs?: () => number }).nextPollDelayMs;
     const interval =
-      !engine.backend.drain && nextDelay ? nextDelay.call(engine.backend) : Math.min(5000, Math.max(engine.backend.drain ? 100 : 2000, left / 10));
+      !engine.backend.drain && nextDelay
+        ? Math.min(nextDelay.call(engine.backend), Math.max(2000, left * 10))
+        : Math.min(5000, Math.max(engine.backend.drain ? 100 : 2000, left / 10));
     await Promise.race([sleep(interval), engine.whenInterrupted()]);
   }
   engine.out.endProgress(label);

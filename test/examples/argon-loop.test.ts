@@ -10,60 +10,16 @@
  *   (spread recomputed here from the trajectory's forces_0..forces_{M-1} with the definition in
  *   design.md, independent of the gates' code) and from before any contact (distance recomputed here).
  */
-import { copyFileSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { mkdtempSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { fileURLToPath, pathToFileURL } from 'node:url';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Frame } from '../../src/atoms/frame.js';
 import { readFrames } from '../../src/atoms/xyz/reader.js';
 import { BufferOutput } from '../../src/engine/output.js';
 import { runCampaign } from '../../src/engine/run.js';
 import { campaignStatus } from '../../src/engine/status.js';
-
-const REPO = fileURLToPath(new URL('../../', import.meta.url));
-const ARGON = join(REPO, 'examples/argon');
-// The stage programs are TypeScript; the campaign lies in a temporary directory, so tsx is named by path.
-const TSX = pathToFileURL(join(REPO, 'node_modules/tsx/dist/loader.mjs')).href;
-const LOWER = 0.012;
-const UPPER = 0.2;
-const MIN_DISTANCE = 2.5;
-
-function campaign(): string {
-  const cmd = (p: string) => JSON.stringify(`node --import ${TSX} ${JSON.stringify(join(ARGON, p))}`);
-  return `# reduced argon demo (test)
-name: argon-demo-reduced
-species: [Ar]
-start: [start-fcc.xyz, start-liquid.xyz]
-committee: { size: 4, bootstrap: true, seed: 0 }
-holdout: 0.2
-rounds: { max: 6, converge: { confident_fraction: 0.98 } }
-conditions:
-  - { name: solid-30K,   temperature: 30,  steps: 1000, timestep: 5, write_every: 20, start: 0 }
-  - { name: liquid-120K, temperature: 120, steps: 1000, timestep: 5, write_every: 20, start: 1 }
-stages:
-  sample:
-    perturb: { count: 8, displacement: 0.05, strain: 0.02 }
-    select: { window: { lower: ${LOWER}, upper: ${UPPER} }, max_per_condition: 8 }
-  label:
-    command: ${cmd('label.ts')}
-    frames_per_task: 16
-    contacts: { min_distance: { "Ar-Ar": ${MIN_DISTANCE} } }
-  train:
-    command: ${cmd('train.ts')}
-  validate:
-    command: ${cmd('validate.ts')}
-    nve_steps: 200
-    params: { equilibration_steps: 400 }
-    max_drift: 0.1
-    errors: { energy_rmse: 5, force_rmse: 20 }
-    contacts: { min_distance: { "Ar-Ar": ${MIN_DISTANCE} } }
-  simulate:
-    command: ${cmd('md.ts')}
-    contacts: { min_distance: { "Ar-Ar": ${MIN_DISTANCE} } }
-backend: { kind: local, jobs: 2 }
-`;
-}
+import { LOWER, MIN_DISTANCE, UPPER, writeReducedArgon } from './argon-reduced.js';
 
 async function frames(path: string): Promise<Frame[]> {
   const out: Frame[] = [];
@@ -110,14 +66,11 @@ function minDistance(f: Frame): number {
 
 describe('the argon demo loop (reduced)', () => {
   const dir = mkdtempSync(join(tmpdir(), 'ratchet-argon-'));
-  const file = join(dir, 'campaign.yaml');
+  const file = writeReducedArgon(dir);
   const out = new BufferOutput();
   let exitCode = -1;
 
   beforeAll(async () => {
-    copyFileSync(join(ARGON, 'start-fcc.xyz'), join(dir, 'start-fcc.xyz'));
-    copyFileSync(join(ARGON, 'start-liquid.xyz'), join(dir, 'start-liquid.xyz'));
-    writeFileSync(file, campaign());
     exitCode = (await runCampaign({ campaign: file, out, error: (m) => out.line(`error: ${m}`) })).exitCode;
   }, 600_000);
   afterAll(() => rmSync(dir, { recursive: true, force: true }));

@@ -22,7 +22,11 @@ install() {
 
 write_conf() {
   local cpus mem
+  # At least 8 schedulable cpus on a 2-core machine (SlurmdParameters=config_overrides lets slurmd take
+  # the configured count): the test suites keep jobs that only sleep (walltime kills) on the node for
+  # minutes, which must not hold back the others' jobs.
   cpus=$(nproc)
+  [ "$cpus" -ge 8 ] || cpus=8
   mem=$(( $(awk '/MemTotal/ {print $2}' /proc/meminfo) / 1024 - 1024 ))
   mkdir -p /etc/slurm "$STATE"/{ctld,d} /var/log/slurm
   cat > "$CONF" <<CONF
@@ -52,6 +56,7 @@ MaxArraySize=1001
 # Jobs that ask for no memory get 256 MiB per cpu instead of the whole node (CR_Core_Memory).
 DefMemPerCPU=256
 KillWait=5
+SlurmdParameters=config_overrides
 InactiveLimit=0
 NodeName=node1 NodeHostname=localhost NodeAddr=127.0.0.1 CPUs=$cpus RealMemory=$mem State=UNKNOWN
 PartitionName=debug Nodes=node1 Default=YES MaxTime=INFINITE State=UP

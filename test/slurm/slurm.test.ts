@@ -1,33 +1,25 @@
 /**
- * The Slurm backend against a real one-node Slurm (Debian slurm 22.05, started by test/slurm/cluster.sh
- * when sinfo cannot reach a controller; stopped again at the end if this suite started it).
+ * The Slurm backend against a real one-node Slurm (Debian slurm 22.05, started through test/slurm/cluster.ts
+ * when sinfo cannot reach a controller, stopped by the global teardown if a test started it).
  * Skipped, with a message, only when slurmctld is not installed (.ci/run installs it).
  *
- * Facts used (Slurm 22.05.8 on these machines, see issue 5): walltime limits are whole minutes and are
- * enforced at or after the limit; array elements are addressed ARRAYID_INDEX; finished jobs stay in
- * `squeue -t all` for MinJobAge (86400 s in cluster.sh). The walltime job is submitted first, in
- * beforeAll, so that its minute or two runs while the other tests do.
+ * Facts used (Slurm 22.05.8 on these machines, see issue 5): array elements are addressed
+ * ARRAYID_INDEX; finished jobs stay in `squeue -t all` for MinJobAge (86400 s in cluster.sh). A walltime
+ * kill and its escalation are tested through the engine, in campaign.test.ts.
  */
 import { spawnSync } from 'node:child_process';
 import { existsSync, readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Submission, TaskSpec, TaskStatus } from '../../src/backends/backend.js';
-import { decide } from '../../src/backends/classify.js';
 import { readExitRecord } from '../../src/backends/exit-record.js';
 import { preflight } from '../../src/backends/preflight.js';
 import { SlurmBackend } from '../../src/backends/slurm.js';
 import { removeTempDirs, task, tempDir, writeTask } from '../backends/cluster/helpers.js';
+import { ensureSlurm, slurmInstalled } from './cluster.js';
 
-const CLUSTER = join(import.meta.dirname, 'cluster.sh');
-const installed = spawnSync('sh', ['-c', 'command -v slurmctld && command -v sbatch'], { encoding: 'utf8' }).status === 0;
-if (!installed) console.warn('test/slurm: slurmctld is not installed, so the real-Slurm tests are skipped (bash test/slurm/cluster.sh install, as .ci/run does, installs it)');
+if (!slurmInstalled) console.warn('test/slurm: slurmctld is not installed, so the real-Slurm tests are skipped (bash test/slurm/cluster.sh install, as .ci/run does, installs it)');
 
-function sinfoUp(): boolean {
-  const r = spawnSync('sinfo', ['-h', '-o', '%T'], { encoding: 'utf8', timeout: 20_000 });
-  return r.status === 0 && /idle|mixed|allocated/.test(r.stdout ?? '');
-}
-let startedHere = false;
 const mine: Submission[] = [];
 
 function backend(over: ConstructorParameters<typeof SlurmBackend>[0] = {}): SlurmBackend {
@@ -58,25 +50,11 @@ async function submit(b: SlurmBackend, tasks: TaskSpec[]): Promise<Submission[]>
 
 const small = { cpus: 1, gpus: 0, memory_mb: 50, walltime_s: 120 };
 
-describe.skipIf(!installed)('real Slurm 22.05', () => {
-  let walltimeSub: Submission[] = [];
-  let walltimeTask: TaskSpec;
-  const wb = backend();
+describe.skipIf(!slurmInstalled)('real Slurm 22.05', () => {
+  beforeAll(() => ensureSlurm(), 180_000);
 
-  beforeAll(async () => {
-    if (!sinfoUp()) {
-      const r = spawnSync('bash', [CLUSTER, 'start'], { encoding: 'utf8', timeout: 120_000 });
-      if (r.status !== 0) throw new Error(`test/slurm/cluster.sh start failed:\n${r.stdout}\n${r.stderr}`);
-      startedHere = true;
-    }
-    // One minute of walltime, a command that would take ten.
-    walltimeTask = writeTask(wb, task(tempDir(), '0000', { stage: 'train', command: 'sleep 600', resources: { ...small, walltime_s: 60 } }));
-    walltimeSub = await submit(wb, [walltimeTask]);
-  }, 180_000);
-
-  afterAll(async () => {
-    if (installed && mine.length) spawnSync('scancel', mine.map((s) => s.job_id));
-    if (startedHere) spawnSync('bash', [CLUSTER, 'stop'], { timeout: 60_000 });
+  afterAll(() => {
+    if (mine.length) spawnSync('scancel', mine.map((s) => s.job_id));
     removeTempDirs();
   }, 90_000);
 
@@ -182,14 +160,4 @@ describe.skipIf(!installed)('real Slurm 22.05', () => {
     expect(r.problems[0].message).toMatch(/invalid partition/i);
     expect(spawnSync('squeue', ['-h', '-n', 'nosuchpartition']).stdout.length).toBe(0);
   });
-
-  it('classifies a task killed at its walltime as walltime, and escalates it', async () => {
-    const [st] = await settle(wb, walltimeSub, 240_000);
-    expect(st.state).toBe('walltime');
-    expect(st.reason).toMatch(/TIMEOUT/);
-    expect(existsSync(join(walltimeTask.dir, 'exit.json'))).toBe(true); // SIGTERM trapped: 143
-    expect(st.exit?.exit_code).toBe(143);
-    const d = decide(st.state, walltimeTask.resources, { failures: 0, walltimes: 1, memoryKills: 0, requeues: 0 }, { attempts: 2, walltimeFactor: 2, walltimeMaxS: 600, memoryFactor: 1 });
-    expect(d).toMatchObject({ action: 'resubmit', changed: { walltime_s: 120 } });
-  }, 260_000);
 });

@@ -114,6 +114,37 @@ describe('Slurm submission', () => {
     expect(got[0].job_id).toBe('61');
   });
 
+  it('adopts the unrecorded elements of an array a crashed run submitted, and only those still queued or running', async () => {
+    // The crash: an array of 4 submitted, the run killed after recording 2 element ids.
+    const first = fakeRunner({ squeue: () => ({ stdout: '' }), sbatch: () => ({ stdout: '41\n' }) });
+    const b1 = new SlurmBackend({ runner: first.runner });
+    const ts = tasks(b1, 4);
+    const name = planUnits(ts, { maxArraySize: 1000 })[0].name;
+    let recorded = 0;
+    await expect(
+      b1.submit(ts, () => {
+        if (++recorded > 2) throw new Error('killed');
+      }),
+    ).rejects.toThrow('killed');
+    // The next run submits the two unrecorded tasks. squeue (format of squeue(1), Slurm 22.05, as in
+    // samples/slurm-squeue.txt): element 3 has already ended, element 4 is still pending.
+    const fake = fakeRunner({
+      squeue: (args) =>
+        args.includes('%F|%j')
+          ? { stdout: `41|${name}\n` }
+          : { stdout: `41|41|3|COMPLETED|None|0|2026-12-01T23:10:43|${name}|\n41|41|4|PENDING|JobArrayTaskLimit|0|N/A|${name}|\n` },
+      sbatch: () => ({ stdout: '42\n' }),
+    });
+    const b2 = new SlurmBackend({ runner: fake.runner, sleep: noSleep });
+    const got: Submission[] = [];
+    await b2.submit(ts.slice(2), (s) => void got.push(s));
+    expect(got.map((s) => [s.id, s.job_id, s.adopted ?? false])).toEqual([
+      ['r0/label/0003', '41_4', true],
+      ['r0/label/0002', '42', false],
+    ]);
+    expect(fake.count('sbatch')).toBe(1);
+  });
+
   it('reports a permanent error at once, naming the command and the message', async () => {
     const fake = fakeRunner({ squeue: () => ({ stdout: '' }), sbatch: () => ({ exitCode: 1, stderr: 'sbatch: error: invalid partition specified: nope\nsbatch: error: Batch job submission failed: Invalid partition name specified\n' }) });
     const b = new SlurmBackend({ runner: fake.runner, sleep: noSleep });
