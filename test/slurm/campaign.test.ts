@@ -6,6 +6,7 @@
  *   submitted twice, counted in the ledger and in the scheduler's own records;
  * - Ctrl-C (SIGINT) while jobs are queued: polling stops, the jobs stay with the scheduler, the next
  *   run follows them without submitting anything again;
+ * - `ratchet run` without --follow, run again and again until the stage is done (as from cron);
  * - a task killed at its walltime, resubmitted with the walltime doubled, and then succeeding.
  * Facts used (seen with Slurm 22.05 on these machines, see issue 5): walltime limits are whole minutes
  * and are enforced 60 to 90 s after the limit, so the walltime campaign starts first, in beforeAll, and
@@ -179,6 +180,34 @@ describe.skipIf(!slurmInstalled)('campaigns on a real Slurm 22.05', () => {
     const ended = ledgerEvents(c.dir).filter((e) => e.type === 'task_ended' && e.task.startsWith('r0/label/'));
     expect(ended.map((e) => e.state)).toEqual(Array(6).fill('succeeded'));
     expect(schedulerRecords(name).map((j) => j.state)).toEqual(Array(6).fill('COMPLETED'));
+  }, 300_000);
+
+  it('run again and again without --follow (as from cron on a login node) reaches the same end, each task submitted once', async () => {
+    const name = `cron${TAG}`;
+    const c = fakeCampaign(name, '  poll_interval: 1\n');
+    writeFileSync(join(c.dir, 'sleep-label'), '3');
+    const outputs: string[] = [];
+    for (let k = 0; k < 60; k++) {
+      const r = await cli(['run', c.file, '--backend', 'slurm', '--until', 'r0/validate']);
+      expect(r.exitCode, String(r.all)).toBe(0);
+      outputs.push(String(r.all));
+      if (/stopped before r0\/validate/.test(String(r.all))) break;
+      expect(String(r.all)).toMatch(/still queued or running; run again/);
+      await new Promise((res) => setTimeout(res, 1000));
+    }
+    expect(outputs.at(-1)).toMatch(/stopped before r0\/validate/);
+    expect(outputs.length).toBeGreaterThan(2);
+    const subs = submitted(c.dir);
+    expect(new Set(subs.map((e) => e.task)).size).toBe(subs.length);
+    expect(subs.filter((e) => e.task.startsWith('r0/label/'))).toHaveLength(6);
+    expect(subs.filter((e) => e.task.startsWith('r0/train/'))).toHaveLength(2);
+    expect(new Set(schedulerRecords(name).map((j) => j.id))).toEqual(new Set(subs.map((e) => e.job_id)));
+    const gated = ledgerEvents(c.dir).filter((e) => e.type === 'stage_gated');
+    expect(gated.map((e) => [e.stage, e.verdict])).toEqual([
+      ['sample', 'pass'],
+      ['label', 'pass'],
+      ['train', 'pass'],
+    ]);
   }, 300_000);
 
   it('resubmits a task killed at its walltime with the walltime doubled, and it then succeeds', async () => {
