@@ -162,7 +162,7 @@ describe.skipIf(!slurmInstalled)('campaigns on a real Slurm 22.05', () => {
   it('Ctrl-C stops polling only: the jobs stay queued at Slurm and the next run follows them', async () => {
     const name = `int${TAG}`;
     const c = fakeCampaign(name, '  poll_interval: 1\n  array_throttle: 1\n');
-    writeFileSync(join(c.dir, 'sleep-label'), '3');
+    writeFileSync(join(c.dir, 'sleep-label'), '4');
     const args = ['run', c.file, '--backend', 'slurm', '--follow', '--until', 'r0/train'];
     const run = cli(args);
     await waitFor('the label jobs to be submitted', () => submitted(c.dir).length === 6);
@@ -170,9 +170,13 @@ describe.skipIf(!slurmInstalled)('campaigns on a real Slurm 22.05', () => {
     const r = await run;
     expect(r.exitCode, String(r.all)).toBe(130);
     expect(String(r.all)).toMatch(/queued and running jobs stay with the scheduler/);
-    expect(ledgerEvents(c.dir).filter((e) => e.type === 'task_ended' && e.task.startsWith('r0/label/'))).toHaveLength(0);
+    // Nothing was cancelled: the tasks not seen to end before the interrupt are still at Slurm.
+    const endedBefore = ledgerEvents(c.dir).filter((e) => e.type === 'task_ended' && e.task.startsWith('r0/label/'));
+    expect(endedBefore.filter((e) => e.state !== 'succeeded')).toEqual([]);
     const live = schedulerRecords(name).filter((j) => j.state === 'PENDING' || j.state === 'RUNNING');
     expect(live.length).toBeGreaterThan(0);
+    expect(live.length).toBeGreaterThanOrEqual(6 - endedBefore.length - 1);
+    expect(schedulerRecords(name).filter((j) => j.state === 'CANCELLED')).toEqual([]);
     const again = await cli(args);
     expect(again.exitCode, String(again.all)).toBe(0);
     const subs = submitted(c.dir);
