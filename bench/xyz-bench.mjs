@@ -93,6 +93,8 @@ const cases = [
   ['map1-committee', 'mapFrames, 1 thread, forces_0..3'],
   ['map2-pos', 'mapFrames, workers: 2 (caller + 1 worker thread), positions only'],
   ['map2-committee', 'mapFrames, workers: 2 (caller + 1 worker thread), forces_0..3'],
+  ['ranges2-pos', 'mapFrames, workers: 2, range-split (usesIndex: false), positions only'],
+  ['ranges2-committee', 'mapFrames, workers: 2, range-split (usesIndex: false), forces_0..3, positions: false'],
 ];
 for (const [kind, what] of cases) {
   const r = child(kind, big);

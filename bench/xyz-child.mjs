@@ -2,7 +2,7 @@
 /**
  * One measurement of the reader benchmark, in its own process so that its peak memory is its own:
  *   node bench/xyz-child.mjs CASE FILE
- * CASE: read-pos | read-committee | read-all | map2-pos | map2-committee | map1-committee
+ * CASE: read-pos | read-committee | read-all | map2-pos | map2-committee | map1-committee | ranges2-pos | ranges2-committee
  * Prints one JSON line: { case, frames, wall_s, cpu_s (all threads), main_thread_cpu_s, max_rss_mb, stats }.
  */
 import { readFileSync } from 'node:fs';
@@ -43,6 +43,9 @@ switch (kind) {
   case 'map2-pos': frames = (await mapFrames(file, job([]), { workers: 2 })).length; stats = mapModule.lastMapStats; break;
   case 'map2-committee': frames = (await mapFrames(file, job(committee), { workers: 2 })).length; stats = mapModule.lastMapStats; break;
   case 'map1-committee': frames = (await mapFrames(file, job(committee), { workers: 1 })).length; stats = mapModule.lastMapStats; break;
+  // range-split mode (a job that does not use the frame index): each thread reads its own byte ranges
+  case 'ranges2-pos': frames = (await mapFrames(file, { ...job([]), fn: 'touchNoIndex', usesIndex: false }, { workers: 2 })).length; stats = mapModule.lastMapStats; break;
+  case 'ranges2-committee': frames = (await mapFrames(file, { ...job(committee), fn: 'touchNoIndex', usesIndex: false, positions: false }, { workers: 2 })).length; stats = mapModule.lastMapStats; break;
   default: throw new Error(`unknown case ${kind}`);
 }
 const wall = (performance.now() - t0) / 1000;

@@ -4,3 +4,10 @@ export function touch(frame, index) {
   for (const col of frame.arrays.values()) s += col.values[0];
   return [index, frame.species.length, frame.positions[0] + s];
 }
+
+/** touch without the frame index (for mapFrames' range-split mode, usesIndex: false). */
+export function touchNoIndex(frame) {
+  let s = 0;
+  for (const col of frame.arrays.values()) s += col.values[0];
+  return [frame.species.length, (frame.positions.length ? frame.positions[0] : 0) + s];
+}

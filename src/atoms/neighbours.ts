@@ -88,8 +88,84 @@ function checkInput(system: AtomsGeometry, cutoff: number): number {
 const MAX_BINS_PER_ATOM = 4;
 const MIN_BIN_CAP = 4096;
 
-function buildGrid(system: AtomsGeometry, cutoff: number, binFractionOption: number | undefined): Grid {
+/** Slots of GridScratch. */
+const WRAPPED = 0, XYZ = 1;
+const BIN = 0, BIN_START = 1, FILL = 2, ATOM = 3;
+
+/**
+ * Work arrays of buildGrid kept between calls: for frames of a few thousand atoms, allocating (and zero-filling, and
+ * later collecting) fresh typed arrays on every search costs about as much as the search. One search uses a scratch at
+ * a time; a search started from inside a visitor gets a fresh one.
+ */
+class GridScratch {
+  private readonly f = [new Float64Array(0), new Float64Array(0)];
+  private readonly n = [new Int32Array(0), new Int32Array(0), new Int32Array(0), new Int32Array(0)];
+  f64(slot: number, length: number): Float64Array {
+    let a = this.f[slot];
+    if (a.length < length) a = this.f[slot] = new Float64Array(Math.max(length, Math.ceil(a.length * 1.5)));
+    return a.length === length ? a : a.subarray(0, length);
+  }
+  /** Bytes held. */
+  get bytes(): number {
+    let b = 0;
+    for (const a of this.f) b += a.byteLength;
+    for (const a of this.n) b += a.byteLength;
+    return b;
+  }
+  i32(slot: number, length: number): Int32Array {
+    let a = this.n[slot];
+    if (a.length < length) a = this.n[slot] = new Int32Array(Math.max(length, Math.ceil(a.length * 1.5)));
+    return a.length === length ? a : a.subarray(0, length);
+  }
+}
+
+let idleScratch: GridScratch | null = new GridScratch();
+/** A scratch grown beyond this (a very large system) is not kept after the search. */
+const MAX_KEPT_SCRATCH = 16 << 20;
+
+/**
+ * Everything about the grid that does not depend on where the atoms are (for a fully periodic system): bins, padding,
+ * stencil and image shifts. Frames of one trajectory share one cell, so this is computed once per cell (gridPlan).
+ */
+interface GridPlan {
+  h: Float64Array;
+  inv: Float64Array;
+  per: [boolean, boolean, boolean];
+  origin: number[];
+  range: number[];
+  nb: [number, number, number];
+  g: [number, number, number];
+  lo: [number, number, number];
+  stencil: Int32Array;
+  /** Per axis k and interior bin b: the image shifts S from shifts[k][2b] to shifts[k][2b + 1]. */
+  shifts: [Int32Array, Int32Array, Int32Array];
+}
+
+const planCache = new Map<string, GridPlan>();
+const PLAN_CACHE_SIZE = 16;
+
+function buildGrid(system: AtomsGeometry, cutoff: number, binFractionOption: number | undefined, scratch: GridScratch): Grid {
   const n = checkInput(system, cutoff);
+  const cell = system.cell;
+  const pbc = system.pbc;
+  // A fully periodic plan depends only on the cell, the cutoff, the bin option and the atom count.
+  let key: string | null = null;
+  let plan: GridPlan | undefined;
+  if (cell !== null && cell.length === 9 && pbc[0] && pbc[1] && pbc[2]) {
+    key = `${n} ${cutoff} ${binFractionOption} ${cell[0]} ${cell[1]} ${cell[2]} ${cell[3]} ${cell[4]} ${cell[5]} ${cell[6]} ${cell[7]} ${cell[8]}`;
+    plan = planCache.get(key);
+  }
+  if (plan === undefined) {
+    plan = makePlan(system, n, cutoff, binFractionOption);
+    if (key !== null && isPeriodic(cell, pbc)) {
+      if (planCache.size >= PLAN_CACHE_SIZE) planCache.delete(planCache.keys().next().value as string);
+      planCache.set(key, plan);
+    }
+  }
+  return fillGrid(system.positions, n, plan, scratch);
+}
+
+function makePlan(system: AtomsGeometry, n: number, cutoff: number, binFractionOption: number | undefined): GridPlan {
   const pbc = system.pbc;
   let h: Float64Array;
   try {
@@ -181,9 +257,55 @@ function buildGrid(system: AtomsGeometry, cutoff: number, binFractionOption: num
   }
   const stencil = halfStencil(edges, m, g, cutoff * (1 + 1e-9) + 1e-12);
 
-  // Wrapped Cartesian position and interior bin (per axis) of each real atom.
-  const p = new Float64Array(3 * n);
-  const bin = new Int32Array(3 * n);
+  // Image shifts that land an atom of interior bin b into the extended grid, per axis and bin index: the integers S
+  // with -lo <= b + S nb < nb + hi, from range[k][2b] to range[k][2b + 1] (only S = 0 along a non-periodic axis).
+  const shifts: [Int32Array, Int32Array, Int32Array] = [new Int32Array(2 * nb[0]), new Int32Array(2 * nb[1]), new Int32Array(2 * nb[2])];
+  for (let k = 0; k < 3; k++) {
+    const r = shifts[k];
+    for (let b = 0; b < nb[k]; b++) {
+      let first = 0, last = 0;
+      if (per[k]) {
+        const q = Math.ceil(Math.max(lo[k], hi[k]) / nb[k]) + 1;
+        first = q + 1;
+        last = -q - 1;
+        for (let S = -q; S <= q; S++) {
+          const B = b + S * nb[k];
+          if (B >= -lo[k] && B < nb[k] + hi[k]) {
+            if (S < first) first = S;
+            last = S;
+          }
+        }
+      }
+      r[2 * b] = first;
+      r[2 * b + 1] = last;
+    }
+  }
+
+  return { h, inv, per, origin, range, nb, g, lo, stencil, shifts };
+}
+
+/** Bin the atoms of one frame (wrapped positions, periodic images) by the plan, into the scratch arrays. */
+function fillGrid(pos: Float64Array, n: number, plan: GridPlan, scratch: GridScratch): Grid {
+  // (three small loops in their own functions: each is optimised on its own, quickly, in every thread that runs it)
+  const p = scratch.f64(WRAPPED, 3 * n);
+  const bin = scratch.i32(BIN, 3 * n);
+  wrapAndBin(pos, n, plan, p, bin);
+  const g = plan.g;
+  const nbins = g[0] * g[1] * g[2];
+  const binStart = scratch.i32(BIN_START, nbins + 1).fill(0);
+  const total = countImages(bin, n, plan, binStart);
+  for (let b = 0; b < nbins; b++) binStart[b + 1] += binStart[b];
+  const fill = scratch.i32(FILL, nbins);
+  fill.set(binStart.subarray(0, nbins));
+  const xyz = scratch.f64(XYZ, 3 * total);
+  const atom = scratch.i32(ATOM, total);
+  placeImages(p, bin, n, plan, fill, xyz, atom);
+  return { n, xyz, atom, binStart, nb: plan.nb, g, lo: plan.lo, stencil: plan.stencil };
+}
+
+/** Wrapped Cartesian position (p) and interior bin per axis (bin) of each real atom. */
+function wrapAndBin(pos: Float64Array, n: number, plan: GridPlan, p: Float64Array, bin: Int32Array): void {
+  const { h, inv, per, origin, range, nb } = plan;
   const sc0 = nb[0] / range[0], sc1 = nb[1] / range[1], sc2 = nb[2] / range[2];
   const nb0 = nb[0], nb1 = nb[1], nb2 = nb[2];
   const or0 = origin[0], or1 = origin[1], or2 = origin[2];
@@ -207,72 +329,59 @@ function buildGrid(system: AtomsGeometry, cutoff: number, binFractionOption: num
     b2 = b2 < 0 ? 0 : b2 >= nb2 ? nb2 - 1 : b2;
     bin[3 * a] = b0; bin[3 * a + 1] = b1; bin[3 * a + 2] = b2;
   }
+}
 
-  // Image shifts that land an atom of interior bin b into the extended grid, per axis and bin index.
-  const shiftLists: Int32Array[][] = [];
-  for (let k = 0; k < 3; k++) {
-    const lists: Int32Array[] = [];
-    for (let b = 0; b < nb[k]; b++) {
-      const out: number[] = [];
-      if (per[k]) {
-        const q = Math.ceil(Math.max(lo[k], hi[k]) / nb[k]) + 1;
-        for (let S = -q; S <= q; S++) {
-          const B = b + S * nb[k];
-          if (B >= -lo[k] && B < nb[k] + hi[k]) out.push(S);
-        }
-      } else {
-        out.push(0);
-      }
-      lists.push(Int32Array.from(out));
-    }
-    shiftLists.push(lists);
-  }
-
-  // Counting sort of real atoms and ghosts by extended bin.
-  const nbins = g[0] * g[1] * g[2];
-  const binStart = new Int32Array(nbins + 1);
-  const g12 = g[1] * g[2];
+/** Counting sort, first pass: entries (real atoms and images) per extended bin into binStart[bin + 1]; their total. */
+function countImages(bin: Int32Array, n: number, plan: GridPlan, binStart: Int32Array): number {
+  const { nb, g, lo } = plan;
+  const range0 = plan.shifts[0], range1 = plan.shifts[1], range2 = plan.shifts[2];
+  const nb0 = nb[0], nb1 = nb[1], nb2 = nb[2];
+  const g12 = g[1] * g[2], g2 = g[2];
+  const lo0 = lo[0], lo1 = lo[1], lo2 = lo[2];
   let total = 0;
   for (let a = 0; a < n; a++) {
     const b0 = bin[3 * a], b1 = bin[3 * a + 1], b2 = bin[3 * a + 2];
-    const L0 = shiftLists[0][b0], L1 = shiftLists[1][b1], L2 = shiftLists[2][b2];
-    for (let u = 0; u < L0.length; u++) {
-      const e0 = (b0 + L0[u] * nb[0] + lo[0]) * g12;
-      for (let v = 0; v < L1.length; v++) {
-        const e1 = e0 + (b1 + L1[v] * nb[1] + lo[1]) * g[2];
-        for (let w = 0; w < L2.length; w++) {
-          binStart[e1 + b2 + L2[w] * nb[2] + lo[2] + 1]++;
+    const u1 = range0[2 * b0 + 1], v0 = range1[2 * b1], v1 = range1[2 * b1 + 1], w0 = range2[2 * b2], w1 = range2[2 * b2 + 1];
+    for (let S0 = range0[2 * b0]; S0 <= u1; S0++) {
+      const e0 = (b0 + S0 * nb0 + lo0) * g12;
+      for (let S1 = v0; S1 <= v1; S1++) {
+        const e1 = e0 + (b1 + S1 * nb1 + lo1) * g2 + b2 + lo2 + 1;
+        for (let S2 = w0; S2 <= w1; S2++) {
+          binStart[e1 + S2 * nb2]++;
           total++;
         }
       }
     }
   }
-  for (let b = 0; b < nbins; b++) binStart[b + 1] += binStart[b];
-  const fill = binStart.slice(0, nbins);
-  const xyz = new Float64Array(3 * total);
-  const atom = new Int32Array(total);
+  return total;
+}
+
+/** Counting sort, second pass: coordinates and atom index of every entry, in extended-bin order. */
+function placeImages(p: Float64Array, bin: Int32Array, n: number, plan: GridPlan, fill: Int32Array, xyz: Float64Array, atom: Int32Array): void {
+  const { h, nb, g, lo } = plan;
+  const range0 = plan.shifts[0], range1 = plan.shifts[1], range2 = plan.shifts[2];
+  const nb0 = nb[0], nb1 = nb[1], nb2 = nb[2];
+  const g12 = g[1] * g[2], g2 = g[2];
+  const lo0 = lo[0], lo1 = lo[1], lo2 = lo[2];
+  const h0 = h[0], h1 = h[1], h2 = h[2], h3 = h[3], h4 = h[4], h5 = h[5], h6 = h[6], h7 = h[7], h8 = h[8];
   for (let a = 0; a < n; a++) {
     const b0 = bin[3 * a], b1 = bin[3 * a + 1], b2 = bin[3 * a + 2];
     const px = p[3 * a], py = p[3 * a + 1], pz = p[3 * a + 2];
-    const L0 = shiftLists[0][b0], L1 = shiftLists[1][b1], L2 = shiftLists[2][b2];
-    for (let u = 0; u < L0.length; u++) {
-      const S0 = L0[u];
-      const e0 = (b0 + S0 * nb[0] + lo[0]) * g12;
-      for (let v = 0; v < L1.length; v++) {
-        const S1 = L1[v];
-        const e1 = e0 + (b1 + S1 * nb[1] + lo[1]) * g[2];
-        for (let w = 0; w < L2.length; w++) {
-          const S2 = L2[w];
-          const slot = fill[e1 + b2 + S2 * nb[2] + lo[2]]++;
-          xyz[3 * slot] = px + S0 * h[0] + S1 * h[3] + S2 * h[6];
-          xyz[3 * slot + 1] = py + S0 * h[1] + S1 * h[4] + S2 * h[7];
-          xyz[3 * slot + 2] = pz + S0 * h[2] + S1 * h[5] + S2 * h[8];
+    const u1 = range0[2 * b0 + 1], v0 = range1[2 * b1], v1 = range1[2 * b1 + 1], w0 = range2[2 * b2], w1 = range2[2 * b2 + 1];
+    for (let S0 = range0[2 * b0]; S0 <= u1; S0++) {
+      const e0 = (b0 + S0 * nb0 + lo0) * g12;
+      for (let S1 = v0; S1 <= v1; S1++) {
+        const e1 = e0 + (b1 + S1 * nb1 + lo1) * g2 + b2 + lo2;
+        for (let S2 = w0; S2 <= w1; S2++) {
+          const slot = fill[e1 + S2 * nb2]++;
+          xyz[3 * slot] = px + S0 * h0 + S1 * h3 + S2 * h6;
+          xyz[3 * slot + 1] = py + S0 * h1 + S1 * h4 + S2 * h7;
+          xyz[3 * slot + 2] = pz + S0 * h2 + S1 * h5 + S2 * h8;
           atom[slot] = a;
         }
       }
     }
   }
-  return { n, xyz, atom, binStart, nb, g, lo, stencil };
 }
 
 /**
@@ -369,7 +478,16 @@ export function forEachPair(system: AtomsGeometry, cutoff: number, visit: PairVi
   if (binFraction !== undefined && (!(binFraction > 0) || !Number.isFinite(binFraction))) {
     throw new NeighbourError(`binFraction must be a positive finite number, got ${binFraction}`);
   }
-  const grid = buildGrid(system, cutoff, binFraction);
+  const scratch = idleScratch ?? new GridScratch();
+  idleScratch = null;
+  try {
+    pairLoop(buildGrid(system, cutoff, binFraction, scratch), cutoff, visit);
+  } finally {
+    idleScratch = scratch.bytes <= MAX_KEPT_SCRATCH ? scratch : new GridScratch();
+  }
+}
+
+function pairLoop(grid: Grid, cutoff: number, visit: PairVisitor): void {
   const { xyz, atom, binStart, nb, g, lo, stencil } = grid;
   const c2 = cutoff * cutoff;
   const ns = stencil.length;
@@ -380,21 +498,18 @@ export function forEachPair(system: AtomsGeometry, cutoff: number, visit: PairVi
         const bin = rowBase + b2;
         const start = binStart[bin], end = binStart[bin + 1];
         if (start === end) continue;
-        // pairs inside the bin
         for (let a = start; a < end; a++) {
-          const i = atom[a];
           const xi = xyz[3 * a], yi = xyz[3 * a + 1], zi = xyz[3 * a + 2];
           for (let b = a + 1; b < end; b++) {
             const dx = xyz[3 * b] - xi, dy = xyz[3 * b + 1] - yi, dz = xyz[3 * b + 2] - zi;
             const d2 = dx * dx + dy * dy + dz * dz;
             if (d2 < c2) {
-              const j = atom[b];
+              const i = atom[a], j = atom[b];
               if (i <= j) visit(i, j, Math.sqrt(d2), dx, dy, dz);
               else visit(j, i, Math.sqrt(d2), -dx, -dy, -dz);
             }
           }
         }
-        // pairs with the half stencil of neighbouring bins
         for (let t = 0; t < ns; t++) {
           const nbin = bin + stencil[t];
           const s0 = binStart[nbin], e = binStart[nbin + 1];
@@ -492,6 +607,20 @@ export interface ClosestPair {
 }
 
 /** Rough extent data used to pick starting cutoffs and an upper bound beyond which every pair has been seen. */
+const imageCache = new Map<string, number>();
+
+/** Distance from an atom to its nearest own periodic image (Infinity without periodicity), cached per cell. */
+function shortestImage(cell: Float64Array | null, pbc: Pbc): number {
+  const key = cell === null ? `${pbc}` : `${pbc} ${Array.prototype.join.call(cell, ' ')}`;
+  let d = imageCache.get(key);
+  if (d === undefined) {
+    d = new MinimumImager(cell, pbc).shortestLatticeVector().distance;
+    if (imageCache.size >= PLAN_CACHE_SIZE) imageCache.delete(imageCache.keys().next().value as string);
+    imageCache.set(key, d);
+  }
+  return d;
+}
+
 function searchScale(system: AtomsGeometry): { start: number; bound: number; selfImage: number } {
   const n = system.positions.length / 3;
   const h = effectiveCell(system.cell, system.pbc);
@@ -519,7 +648,7 @@ function searchScale(system: AtomsGeometry): { start: number; bound: number; sel
     const len = Math.hypot(h[3 * k], h[3 * k + 1], h[3 * k + 2]);
     diag2 += n > 0 ? ((smax[k] - smin[k]) * len) ** 2 : 0;
   }
-  const selfImage = new MinimumImager(system.cell, system.pbc).shortestLatticeVector().distance;
+  const selfImage = shortestImage(system.cell, system.pbc);
   // Two wrapped positions differ by at most sum_k extent_k |row k| <= sqrt(3 diag2); an atom's nearest own image is
   // selfImage away. So every pair that exists has its closest image within `bound`.
   const bound = Math.max(Math.sqrt(3 * diag2), selfImage < Infinity ? selfImage : 0) * (1 + 1e-9) + 1e-9;
@@ -566,7 +695,16 @@ export interface GroupClosest {
  * Grows the cutoff from the mean spacing; group pairs still unresolved after a few doublings (rare species far apart)
  * are finished by a direct minimum-image loop over their atoms when that is cheaper.
  */
-export function minimumDistanceByGroup(system: AtomsGeometry, group: ArrayLike<number>, groupCount: number): GroupClosest {
+export interface GroupSearchOptions {
+  /**
+   * Also visit every pair closer than `within` (Å), once each, from the same neighbour search: the first search
+   * radius is raised to at least `within` (the minima stay exact). Pairs at `within` or beyond may be visited too.
+   */
+  within?: number;
+  visit?: PairVisitor;
+}
+
+export function minimumDistanceByGroup(system: AtomsGeometry, group: ArrayLike<number>, groupCount: number, options: GroupSearchOptions = {}): GroupClosest {
   const n = checkInput(system, 1);
   if (group.length !== n) throw new NeighbourError(`group labels: expected ${n} (one per atom), found ${group.length}`);
   const G = groupCount;
@@ -589,7 +727,9 @@ export function minimumDistanceByGroup(system: AtomsGeometry, group: ArrayLike<n
     }
   }
   const { start, bound } = searchScale(system);
-  let cutoff = start;
+  const within = options.visit !== undefined && options.within !== undefined && options.within > 0 ? options.within : 0;
+  if (within > 0 && !Number.isFinite(within)) throw new NeighbourError(`within must be a finite distance in Å, got ${within}`);
+  let cutoff = Math.max(start, within * (1 + 1e-9));
   const firstCutoff = start;
   const record = (i: number, j: number, d: number): void => {
     let p = group[i], q = group[j];
@@ -602,8 +742,16 @@ export function minimumDistanceByGroup(system: AtomsGeometry, group: ArrayLike<n
     }
   };
   let open = wanted.slice();
-  for (;;) {
-    forEachPair(system, cutoff, (i, j, d) => record(i, j, d));
+  const extra = within > 0 ? options.visit! : null;
+  for (let pass = 0; ; pass++) {
+    if (pass === 0 && extra !== null) {
+      forEachPair(system, cutoff, (i, j, d, dx, dy, dz) => {
+        record(i, j, d);
+        extra(i, j, d, dx, dy, dz);
+      });
+    } else {
+      forEachPair(system, cutoff, (i, j, d) => record(i, j, d));
+    }
     open = open.filter((key) => !(distance[key] < Infinity));
     if (open.length === 0 || cutoff >= bound) break;
     // Direct finish for small remaining group pairs once the cutoff has grown well past the mean spacing.
@@ -662,9 +810,7 @@ function directGroups(
 export function minimumDistanceBySpecies(
   frame: AtomsGeometry & { species: readonly string[] },
 ): Map<string, { distance: number; i: number; j: number }> {
-  const names = [...new Set(frame.species)].sort();
-  const index = new Map(names.map((s, k) => [s, k]));
-  const group = Int32Array.from(frame.species, (s) => index.get(s) as number);
+  const { names, group } = speciesGroups(frame.species);
   const res = minimumDistanceByGroup(frame, group, names.length);
   const out = new Map<string, { distance: number; i: number; j: number }>();
   const G = names.length;
@@ -675,4 +821,36 @@ export function minimumDistanceBySpecies(
     }
   }
   return out;
+}
+
+/** The distinct species sorted (by code unit, as Array.prototype.sort does) and each atom's index into that list. */
+export function speciesGroups(species: readonly string[]): { names: string[]; group: Int32Array } {
+  const n = species.length;
+  const group = new Int32Array(n);
+  const seen = new Map<string, number>();
+  const first: string[] = [];
+  // species of neighbouring atoms are often the same string: one comparison instead of a lookup
+  let last: string | undefined;
+  let lastIndex = -1;
+  for (let a = 0; a < n; a++) {
+    const s = species[a];
+    if (s !== last) {
+      let k = seen.get(s);
+      if (k === undefined) {
+        k = first.length;
+        seen.set(s, k);
+        first.push(s);
+      }
+      last = s;
+      lastIndex = k;
+    }
+    group[a] = lastIndex;
+  }
+  const names = first.slice().sort();
+  if (names.some((s, k) => s !== first[k])) {
+    const remap = new Int32Array(first.length);
+    for (let k = 0; k < first.length; k++) remap[k] = names.indexOf(first[k]);
+    for (let a = 0; a < n; a++) group[a] = remap[group[a]];
+  }
+  return { names, group };
 }

@@ -215,11 +215,19 @@ export function summarizeCommittee(samples: CommitteeSample[], options: Committe
 
 /** Models in the first frame of the first file that has one, and the file; null when every file is empty. */
 async function peekModels(paths: string[], prefix: string): Promise<{ models: number; path: string } | null> {
+  // only the committee arrays are parsed (up to PEEK_MODELS of them; more than that: the whole frame)
+  const candidates = Array.from({ length: PEEK_MODELS }, (_, k) => `${prefix}${k}`);
   for (const path of paths) {
-    for await (const frame of readFrames(path)) return { models: countModels(frame, prefix), path };
+    for await (const frame of readFrames(path, { columns: candidates, positions: false })) {
+      const models = countModels(frame, prefix);
+      if (models < PEEK_MODELS) return { models, path };
+      for await (const full of readFrames(path)) return { models: countModels(full, prefix), path };
+    }
   }
   return null;
 }
+
+const PEEK_MODELS = 64;
 
 /** The committee gate over extended XYZ files (frames numbered across files in order). */
 export async function checkCommittee(paths: string[], options: CommitteeOptions = {}): Promise<GateResult<CommitteeFigures>> {
@@ -240,7 +248,7 @@ export async function checkCommittee(paths: string[], options: CommitteeOptions 
   const columns = Array.from({ length: models }, (_, k) => `${prefix}${k}`);
   const { results, files } = await mapFiles<CommitteeSample>(
     paths,
-    { module: import.meta.url, fn: 'committeeFrame', options: { prefix, models }, columns },
+    { module: import.meta.url, fn: 'committeeFrame', options: { prefix, models }, columns, usesIndex: false, positions: false },
     options.workers ?? defaultWorkers(),
   );
   return summarizeCommittee(results, options, files);

@@ -9,7 +9,7 @@
  */
 import { covalentRadius } from '../atoms/elements.js';
 import type { Frame } from '../atoms/frame.js';
-import { forEachPair, minimumDistanceBySpecies } from '../atoms/neighbours.js';
+import { minimumDistanceByGroup, speciesGroups } from '../atoms/neighbours.js';
 import { defaultWorkers, firstNonFinite, frameLabel, mapFiles } from './frames.js';
 import { GateInputError, type FileSpan, type GateResult } from './types.js';
 import { Judgement, fmt } from './verdict.js';
@@ -110,6 +110,30 @@ export function pairLimitsFor(species: readonly string[], scale: number, explici
   return out;
 }
 
+/** Normalised explicit limits (and their text) per options object (the same object is passed for every frame of a file). */
+const normalisedLimits = new WeakMap<object, { limits: Record<string, number>; text: string }>();
+const NO_LIMITS = { limits: {}, text: '{}' };
+/** Limits per species set, scale and explicit limits (a file usually has one species set). */
+const limitsCache = new Map<string, Record<string, number>>();
+
+function limitsFor(names: string[], scale: number, pairLimits: Record<string, number> | undefined): Record<string, number> {
+  let explicit = pairLimits === undefined ? NO_LIMITS : normalisedLimits.get(pairLimits);
+  if (explicit === undefined) {
+    const limits = normalisePairLimits(pairLimits);
+    explicit = { limits, text: JSON.stringify(limits) };
+    normalisedLimits.set(pairLimits!, explicit);
+  }
+  const key = `${scale}\u0000${names.join('\u0000')}\u0000${explicit.text}`;
+  let limits = limitsCache.get(key);
+  if (limits === undefined) {
+    limits = pairLimitsFor(names, scale, explicit.limits);
+    if (limitsCache.size > 64) limitsCache.clear();
+    limitsCache.set(key, limits);
+  }
+  // a copy: the sample is the caller's to keep
+  return { ...limits };
+}
+
 /** The per-frame part of the contacts gate (pure; what mapFrames runs on each frame). */
 export function contactsFrame(frame: Frame, _index: number, options: ContactsFrameOptions = {}): ContactsSample {
   const scale = options.scale ?? CONTACTS_DEFAULTS.scale;
@@ -121,48 +145,60 @@ export function contactsFrame(frame: Frame, _index: number, options: ContactsFra
     out.bad = `non-finite positions (atom ${Math.floor(k / 3)})`;
     return out;
   }
+  const { names, group } = speciesGroups(frame.species);
   try {
-    out.limits = pairLimitsFor(frame.species, scale, normalisePairLimits(options.pairLimits));
+    out.limits = limitsFor(names, scale, options.pairLimits);
   } catch (err) {
     out.missing = (err as Error).message;
     return out;
   }
   try {
-    const byPair = minimumDistanceBySpecies(frame);
-    for (const [key, c] of byPair) {
-      out.pairs[key] = { distance: c.distance, i: c.i, j: c.j };
-      if (out.min === null || c.distance < out.min.distance)
-        out.min = { distance: c.distance, i: Math.min(c.i, c.j), j: Math.max(c.i, c.j) };
-    }
+    // a limit matrix by species index: no string work per pair
+    const G = names.length;
+    const limit = new Float64Array(G * G);
     let cutoff = 0;
-    for (const v of Object.values(out.limits)) cutoff = Math.max(cutoff, v);
-    // Nothing can violate when the closest pair is already at or beyond every limit.
-    if (out.min !== null && out.min.distance < cutoff) {
-      // species index per atom and a limit matrix: no string work per pair
-      const names = [...new Set(frame.species)].sort();
-      const G = names.length;
-      const index = new Map(names.map((x, k) => [x, k]));
-      const group = Int32Array.from(frame.species, (x) => index.get(x) as number);
-      const limit = new Float64Array(G * G);
-      for (let p = 0; p < G; p++) for (let q = 0; q < G; q++) limit[p * G + q] = out.limits[pairKey(names[p], names[q])];
-      const kept: { i: number; j: number; d: number; limit: number; r: number }[] = [];
-      let worstKept = Infinity;
-      forEachPair(frame, cutoff, (i, j, d) => {
+    for (let p = 0; p < G; p++) {
+      for (let q = 0; q < G; q++) {
+        const v = out.limits[pairKey(names[p], names[q])];
+        limit[p * G + q] = v;
+        if (v > cutoff) cutoff = v;
+      }
+    }
+    // The closest pair of every species pair and, from the same neighbour search, every pair closer than its limit.
+    // Kept: the `cap` most severe violations by (distance / limit, i, j), whatever order the pairs come in.
+    const kept: { i: number; j: number; d: number; limit: number; r: number }[] = [];
+    const worse = (a: { r: number; i: number; j: number }, b: { r: number; i: number; j: number }) => a.r - b.r || a.i - b.i || a.j - b.j;
+    let worst: { r: number; i: number; j: number } | null = null;
+    const res = minimumDistanceByGroup(frame, group, G, {
+      within: cutoff,
+      visit: (i, j, d) => {
         const lim = limit[group[i] * G + group[j]];
         if (!(d < lim)) return;
         out.violationCount++;
-        const r = d / lim;
-        if (kept.length >= cap && r >= worstKept) return;
-        kept.push({ i, j, d, limit: lim, r });
+        if (cap <= 0) return;
+        const v = { i, j, d, limit: lim, r: d / lim };
+        if (worst !== null && worse(v, worst) >= 0) return;
+        kept.push(v);
         if (kept.length > 4 * cap + 16) {
-          kept.sort((a, b) => a.r - b.r);
+          kept.sort(worse);
           kept.length = cap;
-          worstKept = kept[cap - 1].r;
+          worst = kept[cap - 1];
         }
-      });
-      kept.sort((a, b) => a.r - b.r || a.i - b.i || a.j - b.j);
-      out.violations = kept.slice(0, cap).map((v) => ({ i: v.i, j: v.j, species: [frame.species[v.i], frame.species[v.j]], distance: v.d, limit: v.limit }));
+      },
+    });
+    for (let p = 0; p < G; p++) {
+      for (let q = p; q < G; q++) {
+        const key = p * G + q;
+        const d = res.distance[key];
+        if (!(d < Infinity)) continue;
+        const i = res.i[key];
+        const j = res.j[key];
+        out.pairs[`${names[p]}-${names[q]}`] = { distance: d, i, j };
+        if (out.min === null || d < out.min.distance) out.min = { distance: d, i: Math.min(i, j), j: Math.max(i, j) };
+      }
     }
+    kept.sort(worse);
+    out.violations = kept.slice(0, cap).map((v) => ({ i: v.i, j: v.j, species: [frame.species[v.i], frame.species[v.j]], distance: v.d, limit: v.limit }));
   } catch (err) {
     out.missing = (err as Error).message;
   }
@@ -279,6 +315,7 @@ export async function checkContacts(paths: string[], options: ContactsOptions = 
       fn: 'contactsFrame',
       options: { scale, pairLimits, maxPerFrame: options.maxPerFrame ?? CONTACTS_DEFAULTS.maxPerFrame },
       columns: [],
+      usesIndex: false,
     },
     options.workers ?? defaultWorkers(),
   );

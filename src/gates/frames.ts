@@ -3,7 +3,7 @@
  * Frames are numbered across the files in order (0-based); FileSpan says where each file starts.
  */
 import { availableParallelism } from 'node:os';
-import { mapFrames, type FrameJob } from '../atoms/xyz/map.js';
+import type { FrameJob } from '../atoms/xyz/map.js';
 import type { FileSpan } from './types.js';
 
 /** Default worker threads for a gate: min(2, cpus) (the speed path of the reader's benchmark). */
@@ -13,6 +13,8 @@ export function defaultWorkers(): number {
 
 /** Apply `job` to every frame of every file, in order; results indexed by global frame number. */
 export async function mapFiles<R>(paths: string[], job: FrameJob, workers = defaultWorkers()): Promise<{ results: R[]; files: FileSpan[] }> {
+  // imported here, not at the top: worker threads load the gate modules for their per-frame functions only
+  const { mapFrames } = await import('../atoms/xyz/map.js');
   const results: R[] = [];
   const files: FileSpan[] = [];
   for (const path of paths) {

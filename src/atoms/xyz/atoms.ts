@@ -65,10 +65,11 @@ export function parseAtoms(
   wanted: Set<string> | null,
   where: Where,
   lastLineOpen = -1,
+  parsePositions = true,
 ): AtomBlock {
   const ncols = layout.ncols;
   const species: string[] = new Array(natoms);
-  const positions = new Float64Array(3 * natoms);
+  const positions = new Float64Array(parsePositions ? 3 * natoms : 0);
   const arrays = new Map<string, AtomColumn>();
   let z: Float64Array | null = null;
   // The line as a list of operations, one per property up to the last one parsed (neighbouring skipped
@@ -101,7 +102,8 @@ export function parseAtoms(
     if (isSpecies) {
       push(SPECIES, 1, prop.first, null, null, null);
     } else if (isPos) {
-      push(REAL, 3, prop.first, positions, null, null);
+      if (parsePositions) push(REAL, 3, prop.first, positions, null, null);
+      else push(SKIP, prop.width, prop.first, null, null, null);
     } else if (!keep && !needZ) {
       push(SKIP, prop.width, prop.first, null, null, null);
     } else if (prop.type === 'R' || prop.type === 'I') {

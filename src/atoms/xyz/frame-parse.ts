@@ -12,15 +12,16 @@ import { MAX_Z, SYMBOLS } from '../elements.js';
 /**
  * Parse the frame `span` of `buf`. `wanted`: names of the per-atom columns to keep besides species and
  * pos (null = all). `lastLineOpen`: offset of the file's last line when it had no newline, else -1.
+ * `positions` false: pos is checked like a skipped column but not parsed, and frame.positions is empty.
  */
-export function parseFrame(buf: Buffer, span: FrameSpan, file: string, wanted: Set<string> | null, lastLineOpen = -1): Frame {
+export function parseFrame(buf: Buffer, span: FrameSpan, file: string, wanted: Set<string> | null, lastLineOpen = -1, positions = true): Frame {
   const where: Where = { file, line: span.line, frame: span.index };
   let commentEnd = span.commentEnd;
   if (commentEnd > span.commentStart && buf[commentEnd - 1] === 13) commentEnd--;
   const text = buf.toString('utf8', span.commentStart, commentEnd);
   const comment = parseComment(text, where);
   const layout = comment.properties !== null ? parseProperties(comment.properties, file, span.line + 1) : PLAIN_LAYOUT;
-  const block = parseAtoms(buf, span.atomsStart, span.natoms, layout, wanted, where, lastLineOpen);
+  const block = parseAtoms(buf, span.atomsStart, span.natoms, layout, wanted, where, lastLineOpen, positions);
   let species = block.species;
   if (layout.species < 0 && block.z !== null) {
     species = new Array(span.natoms);

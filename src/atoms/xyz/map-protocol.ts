@@ -14,6 +14,14 @@ export interface FrameJob {
   options?: unknown;
   /** Per-atom properties the function needs besides species and pos (others may be skipped while parsing). */
   columns?: string[];
+  /**
+   * false: the function does not use its `index` argument. This lets mapFrames (workers > 1, plain files) split the
+   * file into byte ranges that each thread reads and parses itself; the function is then called with index -1 for
+   * frames whose index is not known yet. Default true.
+   */
+  usesIndex?: boolean;
+  /** false: the function does not need positions; they are not parsed and frame.positions is empty. Default true. */
+  positions?: boolean;
 }
 
 /** Numbers per frame in BatchMessage.spans: index, line, natoms, start, commentStart, commentEnd, atomsStart, end. */
@@ -30,6 +38,20 @@ export interface BatchMessage {
   /** Offset in buf of the file's last line when it had no newline, else -1. */
   lastLineOpen: number;
 }
+
+/** Range-split mode: parse the frames of [from, to) (see range.ts). */
+export interface RangeMessage {
+  kind: 'range';
+  id: number;
+  from: number;
+  to: number;
+  /** Known true start: parse from `from` with these line and frame numbers; null: guess the start. */
+  base: { line: number; frame: number } | null;
+}
+
+export type RangeReply =
+  | { kind: 'range'; id: number; start: number; end: number; lines: number; frames: number; results: unknown[] }
+  | { kind: 'range'; id: number; start: number; error: SerializedError };
 
 export type SerializedError =
   | { kind: 'xyz'; file: string; line: number; detail: string }

@@ -1,16 +1,20 @@
 /**
  * Worker thread of mapFrames: parses the frames of the byte batches it is sent (only the requested
- * columns) and applies the job function, posting the results (or the first error) back.
+ * columns) and applies the job function, posting the results (or the first error) back. In range-split
+ * mode it is sent byte ranges instead, and reads them from the file itself (range.ts).
  */
+import { open, type FileHandle } from 'node:fs/promises';
 import { parentPort, workerData } from 'node:worker_threads';
 import type { Frame } from '../frame.js';
 import { parseFrame } from './frame-parse.js';
 import type { FrameSpan } from './scanner.js';
-import { SPAN_FIELDS, serializeError, type BatchMessage, type FrameJob, type ReplyMessage } from './map-protocol.js';
+import { SPAN_FIELDS, serializeError, type BatchMessage, type FrameJob, type RangeMessage, type RangeReply, type ReplyMessage } from './map-protocol.js';
+import { guessFrameStart, parseRange, type RangeScratch } from './range.js';
 
 const { file, job } = workerData as { file: string; job: FrameJob };
 const port = parentPort!;
 const wanted = job.columns ? new Set(job.columns) : null;
+const positions = job.positions ?? true;
 
 const ready: Promise<(frame: Frame, index: number, options: unknown) => unknown> = (async () => {
   const mod = (await import(job.module)) as Record<string, unknown>;
@@ -20,7 +24,42 @@ const ready: Promise<(frame: Frame, index: number, options: unknown) => unknown>
 })();
 ready.catch(() => undefined);
 
-port.on('message', async (msg: BatchMessage) => {
+let handle: Promise<FileHandle> | null = null;
+const scratch: RangeScratch = {};
+/** Range messages are handled one after the other (they share the scratch buffers). */
+let queue: Promise<void> = Promise.resolve();
+
+/** Range-split mode: read and parse a byte range of the file here (nothing but the results is sent back). */
+async function range(msg: RangeMessage): Promise<RangeReply> {
+  let start = msg.base ? msg.from : -1;
+  try {
+    const fn = await ready;
+    handle ??= open(file, 'r');
+    const fh = await handle;
+    if (msg.base === null) start = await guessFrameStart(fh, msg.from, msg.to, scratch);
+    if (start < 0) return { kind: 'range', id: msg.id, start: -1, end: -1, lines: 0, frames: 0, results: [] };
+    const r = await parseRange(fh, file, start, msg.to, msg.base, wanted, fn, job.options, scratch, positions);
+    return { kind: 'range', id: msg.id, ...r };
+  } catch (err) {
+    return { kind: 'range', id: msg.id, start, error: serializeError(err) };
+  }
+}
+
+port.on('message', async (m: BatchMessage | RangeMessage | { kind: 'close' }) => {
+  if ('kind' in m) {
+    if (m.kind === 'range') {
+      queue = queue.then(async () => port.postMessage(await range(m)));
+    } else {
+      queue = queue.then(async () => {
+        const h = handle;
+        handle = null;
+        if (h) await (await h.catch(() => null))?.close().catch(() => undefined);
+        port.postMessage({ kind: 'closed' });
+      });
+    }
+    return;
+  }
+  const msg = m;
   let reply: ReplyMessage;
   try {
     const fn = await ready;
@@ -40,7 +79,7 @@ port.on('message', async (msg: BatchMessage) => {
         atomsStart: s[k + 6] | 0,
         end: s[k + 7] | 0,
       };
-      const frame = parseFrame(buf, span, file, wanted, msg.lastLineOpen);
+      const frame = parseFrame(buf, span, file, wanted, msg.lastLineOpen, positions);
       results.push(await fn(frame, span.index, job.options));
     }
     reply = { id: msg.id, results };

@@ -10,19 +10,32 @@
  * (file and absolute line) as the sequential reader gives, and the first error in file order wins.
  * Small files (under 2 batches) are read on the calling thread only.
  *
+ * Range-split mode, for jobs that declare usesIndex: false, on plain files: every thread reads and parses byte ranges
+ * of the file itself, and only the per-frame results cross threads (see ranges() and range.ts).
+ *
  * Running from TypeScript sources (this module's URL ends in .ts, as under vitest or tsx), workers
  * register tsx themselves (Node 20 does not apply --import hooks inside worker threads); when tsx
  * cannot be found the work is done on the calling thread instead.
  */
 import { readFileSync } from 'node:fs';
-import { stat } from 'node:fs/promises';
+import { open, stat } from 'node:fs/promises';
 import { dirname, join } from 'node:path';
 import { createRequire } from 'node:module';
 import { pathToFileURL } from 'node:url';
 import { Worker } from 'node:worker_threads';
 import type { Frame } from '../frame.js';
 import { parseFrame } from './frame-parse.js';
-import { deserializeError, serializeError, SPAN_FIELDS, type BatchMessage, type FrameJob, type ReplyMessage } from './map-protocol.js';
+import {
+  deserializeError,
+  serializeError,
+  SPAN_FIELDS,
+  type BatchMessage,
+  type FrameJob,
+  type RangeMessage,
+  type RangeReply,
+  type ReplyMessage,
+} from './map-protocol.js';
+import { guessFrameStart, parseRange, type RangeBase, type RangeScratch } from './range.js';
 import { readFrames } from './reader.js';
 import { END, FrameScanner, type FrameSpan } from './scanner.js';
 import { openSource } from './source.js';
@@ -39,11 +52,17 @@ export interface MapOptions {
   batchBytes?: number;
   /** Let the calling thread parse batches when every worker is busy (default true); false sends every batch to a worker. */
   callerParses?: boolean;
+  /**
+   * Range-split mode (jobs with usesIndex: false, plain files): bytes per range (default: the file size over 4 ranges
+   * per thread, from 1 to 8 MiB).
+   */
+  rangeBytes?: number;
 }
 
 /** How mapFrames ran, for tests and benchmarks. */
 export interface MapStats {
-  mode: 'sequential' | 'parallel';
+  /** parallel: the calling thread ships batches of bytes to workers; ranges: each thread reads byte ranges itself. */
+  mode: 'sequential' | 'parallel' | 'ranges';
   /** Why the sequential path was taken, when it was. */
   reason?: string;
   batches: number;
@@ -51,12 +70,20 @@ export interface MapStats {
   callerBatches?: number;
   /** Most batches in flight to workers at once. */
   maxInFlight: number;
+  /** Ranges mode: ranges whose guessed start was wrong or whose parse failed, parsed again on the calling thread. */
+  reparsed?: number;
+  /** Ranges mode: ranges that held no frame start. */
+  empty?: number;
 }
 
 /** Statistics of the last mapFrames call (in this thread). */
 export let lastMapStats: MapStats = { mode: 'sequential', batches: 0, maxInFlight: 0 };
 
 const DEFAULT_BATCH = 2 << 20;
+const DEFAULT_RANGE = 8 << 20;
+const MIN_RANGE = 1 << 20;
+/** Ranges queued per worker thread in range-split mode. */
+const RANGES_QUEUED = 2;
 /**
  * Batches queued per worker thread: enough to hide the latency of waking a thread (a 2 MiB batch is
  * parsed in 2-4 ms), few enough to bound memory (MAX_QUEUED x 4 MiB recycled buffers per worker).
@@ -73,9 +100,13 @@ export async function mapFrames<R>(path: string, job: FrameJob, opts: MapOptions
   if (workers <= 1) return sequential(path, job, 'workers <= 1');
   const { size } = await stat(path);
   if (size < 2 * batchBytes) return sequential(path, job, `file smaller than 2 batches (${size} bytes)`);
+  const splittable = job.usesIndex === false && !(await isGzip(path));
+  // about 4 ranges per thread at least (for balance), at most DEFAULT_RANGE bytes each
+  const rangeBytes = Math.max(1, Math.floor(opts.rangeBytes ?? Math.min(DEFAULT_RANGE, Math.max(MIN_RANGE, Math.ceil(size / (4 * workers))))));
   const launch = workerLaunch(job);
   if (launch === null) return sequential(path, job, 'TypeScript sources and no tsx loader for worker threads');
   const fn = await loadFn<R>(job);
+  if (splittable) return ranges<R>(path, size, job, fn, workers, rangeBytes, launch);
   return parallel<R>(path, job, fn, workers, batchBytes, launch, opts.callerParses ?? true);
 }
 
@@ -90,7 +121,7 @@ async function sequential<R>(path: string, job: FrameJob, reason: string): Promi
   const fn = await loadFn<R>(job);
   const out: R[] = [];
   let index = 0;
-  for await (const frame of readFrames(path, { columns: job.columns })) out.push(await fn(frame, index++, job.options));
+  for await (const frame of readFrames(path, { columns: job.columns, positions: job.positions })) out.push(await fn(frame, index++, job.options));
   lastMapStats = { mode: 'sequential', reason, batches: 0, maxInFlight: 0 };
   return out;
 }
@@ -233,7 +264,7 @@ async function parallel<R>(
   const local = async (batch: FrameSpan[], id: number) => {
     try {
       const results: unknown[] = [];
-      for (const span of batch) results.push(await fn(parseFrame(scanner.buf, span, path, wanted, scanner.lastLineOpen), span.index, job.options));
+      for (const span of batch) results.push(await fn(parseFrame(scanner.buf, span, path, wanted, scanner.lastLineOpen, job.positions ?? true), span.index, job.options));
       done.set(id, { id, results });
     } catch (err) {
       done.set(id, { id, error: serializeError(err) });
@@ -317,5 +348,163 @@ async function parallel<R>(
   } finally {
     await Promise.all(slots.map((s) => s.worker.terminate()));
     await source.close();
+  }
+}
+
+/** Does the file start with the gzip magic bytes? */
+async function isGzip(path: string): Promise<boolean> {
+  const fh = await open(path, 'r');
+  try {
+    const head = Buffer.alloc(2);
+    const { bytesRead } = await fh.read(head, 0, 2, 0);
+    return bytesRead === 2 && head[0] === 0x1f && head[1] === 0x8b;
+  } finally {
+    await fh.close();
+  }
+}
+
+/** A range's outcome; `raw`: the error itself when the range was parsed on this thread. */
+type RangeDone = RangeReply & { trusted: boolean; raw?: unknown };
+
+/**
+ * Range-split mode (see range.ts): the file is cut into ranges of about rangeBytes; every thread, the calling one
+ * included, opens the file and reads and parses whole ranges itself, so only the small per-frame results cross
+ * threads. Workers get RANGES_QUEUED ranges at a time, the calling thread takes the next range whenever they are
+ * busy. Ranges are accepted in file order: a range is accepted only when its guessed start is exactly where the
+ * accepted ranges before it ended; otherwise (and when it failed) it is parsed again here from its true start, with
+ * its true line and frame numbers, so results and errors are those of the sequential reader.
+ */
+async function ranges<R>(path: string, size: number, job: FrameJob, fn: JobFn<R>, threads: number, rangeBytes: number, launch: Launch): Promise<R[]> {
+  const count = Math.max(2, Math.round(size / rangeBytes));
+  const bounds = Array.from({ length: count + 1 }, (_, k) => Math.round((k * size) / count));
+  // the last range reads to the end of the file, as the sequential reader does (should the file have grown since)
+  bounds[count] = Infinity;
+  const wanted = job.columns ? new Set(job.columns) : null;
+  const replies: (RangeDone | undefined)[] = new Array(count);
+  const scratch: RangeScratch = {};
+  const slots: { worker: Worker; outstanding: number; closed: Promise<void> }[] = [];
+  const fh = await open(path, 'r');
+  let next = 0; // next range to hand out
+  let fatal: Error | null = null;
+  let wake: (() => void) | null = null;
+  const notify = () => {
+    const w = wake;
+    wake = null;
+    w?.();
+  };
+  const waitForProgress = () => new Promise<void>((resolve) => (wake = resolve));
+
+  /** Parse range k on this thread (from its guessed start, or from a known start with its base). */
+  const local = async (k: number, known: { start: number; base: RangeBase } | null): Promise<RangeDone> => {
+    let start = known ? known.start : -1;
+    try {
+      if (known === null) start = await guessFrameStart(fh, bounds[k], bounds[k + 1], scratch);
+      if (start < 0) return { kind: 'range', id: k, start: -1, end: -1, lines: 0, frames: 0, results: [], trusted: false };
+      const r = await parseRange(fh, path, start, bounds[k + 1], known ? known.base : null, wanted, fn, job.options, scratch, job.positions ?? true);
+      return { kind: 'range', id: k, ...r, trusted: known !== null };
+    } catch (err) {
+      return { kind: 'range', id: k, start, error: serializeError(err), trusted: known !== null, raw: err };
+    }
+  };
+
+  const feed = () => {
+    for (const slot of slots) {
+      while (slot.outstanding < RANGES_QUEUED && next < count && fatal === null) {
+        const msg: RangeMessage = { kind: 'range', id: next, from: bounds[next], to: bounds[next + 1], base: null };
+        next++;
+        slot.outstanding++;
+        slot.worker.postMessage(msg);
+      }
+    }
+  };
+
+  for (let w = 0; w < threads - 1; w++) {
+    const workerData = { file: path, job, __boot: launch.boot };
+    const worker = launch.eval
+      ? new Worker(launch.entry as string, { eval: true, workerData, execArgv: [] })
+      : new Worker(launch.entry, { workerData });
+    let closed!: () => void;
+    const slot = { worker, outstanding: 0, closed: new Promise<void>((resolve) => (closed = resolve)) };
+    worker.on('message', (msg: RangeReply | { kind: 'closed' }) => {
+      if (msg.kind === 'closed') {
+        closed();
+        return;
+      }
+      slot.outstanding--;
+      replies[msg.id] = { ...msg, trusted: false };
+      feed();
+      notify();
+    });
+    worker.on('error', (err) => {
+      fatal ??= err;
+      closed();
+      notify();
+    });
+    worker.on('exit', (code) => {
+      if (code !== 0) fatal ??= new Error(`mapFrames worker exited with code ${code}`);
+      closed();
+      notify();
+    });
+    slots.push(slot);
+  }
+
+  const out: R[] = [];
+  let reparsed = 0;
+  let empty = 0;
+  let callerRanges = 0;
+  try {
+    // The calling thread starts with range 0 (its start is known) while the workers start up.
+    next = 1;
+    feed();
+    replies[0] = await local(0, { start: 0, base: { line: 1, frame: 0 } });
+    callerRanges++;
+    let end = 0; // where the accepted ranges end (Infinity after the end of the file)
+    const base: RangeBase = { line: 1, frame: 0 };
+    for (let k = 0; k < count; ) {
+      if (fatal) throw fatal;
+      let r = replies[k];
+      if (r === undefined) {
+        if (next < count) {
+          const j = next++;
+          replies[j] = await local(j, null);
+          callerRanges++;
+          // (reads are synchronous: let the workers' messages in, so that their queues are refilled)
+          await new Promise((resolve) => setImmediate(resolve));
+        } else {
+          await waitForProgress();
+        }
+        continue;
+      }
+      replies[k] = undefined;
+      if (end >= bounds[k + 1]) {
+        // the ranges before reach past this one: it holds no frame start
+        empty++;
+        k++;
+        continue;
+      }
+      if (!(r.start === end && (r.trusted || !('error' in r)))) {
+        reparsed++;
+        r = await local(k, { start: end, base: { ...base } });
+      }
+      if ('error' in r) throw r.raw ?? deserializeError(r.error);
+      for (const x of r.results) out.push(x as R);
+      end = r.end;
+      base.line += r.lines;
+      base.frame += r.frames;
+      k++;
+    }
+    return out;
+  } finally {
+    // (also when the file turned out to be bad: the statistics say how far the ranges got)
+    lastMapStats = { mode: 'ranges', batches: count, callerBatches: callerRanges, maxInFlight: RANGES_QUEUED * slots.length, reparsed, empty };
+    next = count;
+    await Promise.all(
+      slots.map(async (s) => {
+        s.worker.postMessage({ kind: 'close' });
+        await Promise.race([s.closed, new Promise((resolve) => setTimeout(resolve, 1000).unref())]);
+        await s.worker.terminate();
+      }),
+    );
+    await fh.close();
   }
 }

@@ -12,6 +12,11 @@ export { XyzError } from './errors.js';
 export interface ReadOptions {
   /** Per-atom properties to parse besides species and pos; undefined means all. Others are skipped. */
   columns?: string[];
+  /**
+   * false: do not parse positions (they are still checked to be there: the column count of every line is);
+   * frame.positions is then an empty array. Default true.
+   */
+  positions?: boolean;
 }
 
 /** The frames of an extended XYZ (or plain XYZ) file, in file order. Throws XyzError on bad input. */
@@ -34,6 +39,7 @@ export async function* readFramesFromStream(
 
 async function* framesOf(source: ByteSource, file: string, opts: ReadOptions): AsyncGenerator<Frame> {
   const wanted = opts.columns ? new Set(opts.columns) : null;
+  const positions = opts.positions ?? true;
   const scanner = new FrameScanner(source, file);
   try {
     for (;;) {
@@ -43,7 +49,7 @@ async function* framesOf(source: ByteSource, file: string, opts: ReadOptions): A
         await scanner.fill();
         continue;
       }
-      yield parseFrame(scanner.buf, span, file, wanted, scanner.lastLineOpen);
+      yield parseFrame(scanner.buf, span, file, wanted, scanner.lastLineOpen, positions);
     }
   } finally {
     await source.close();

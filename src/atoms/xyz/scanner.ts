@@ -24,6 +24,16 @@ export interface FrameSpan {
 
 export const END = Symbol('end of frames');
 
+/** Where a scanner starts when it does not start at the beginning of a file (see range.ts). */
+export interface ScanStart {
+  /** 1-based line number of the first byte the source delivers (default 1). */
+  line?: number;
+  /** 0-based index of the first frame found (default 0). */
+  frame?: number;
+  /** A window buffer to reuse (avoids the page faults of a fresh large buffer). */
+  buf?: Buffer;
+}
+
 const MAX_ATOMS = 2 ** 31 - 1;
 const MAX_HEADER_BYTES = 1 << 20;
 
@@ -32,6 +42,8 @@ export class FrameScanner {
   private view: Buffer;
   private len = 0;
   private pos = 0;
+  /** Bytes dropped from the window start so far: the source offset of buf[0]. */
+  private dropped = 0;
   private eof = false;
   /** Line number of the byte at pos. */
   private line = 1;
@@ -52,14 +64,32 @@ export class FrameScanner {
     private readonly source: ByteSource,
     readonly file: string,
     windowBytes = 4 << 20,
+    start: ScanStart = {},
   ) {
-    this.buf = Buffer.allocUnsafe(windowBytes);
+    this.buf = start.buf ?? Buffer.allocUnsafe(windowBytes);
     this.view = this.buf.subarray(0, 0);
+    this.line = start.line ?? 1;
+    this.frame = start.frame ?? 0;
   }
 
   /** Bytes consumed so far relative to the window start (frames before pos are done). */
   get consumed(): number {
     return this.pos;
+  }
+
+  /** Bytes of the source consumed so far (every frame before this offset has been taken). */
+  get position(): number {
+    return this.dropped + this.pos;
+  }
+
+  /** Line number of the next byte to be consumed. */
+  get lineNumber(): number {
+    return this.line;
+  }
+
+  /** Frames taken so far, plus the starting frame index. */
+  get frameNumber(): number {
+    return this.frame;
   }
 
   /**
@@ -134,6 +164,7 @@ export class FrameScanner {
     const keep = this.fStart >= 0 ? this.fStart : this.pos;
     if (keep > 0) {
       this.buf.copyWithin(0, keep, this.len);
+      this.dropped += keep;
       this.len -= keep;
       this.pos -= keep;
       if (this.fStart >= 0) {

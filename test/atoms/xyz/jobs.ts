@@ -41,3 +41,15 @@ export function failOnFive(frame: Frame, index: number): number {
 }
 
 export const notAFunction = 42;
+
+/** summary without the frame index, for mapFrames' range-split mode (usesIndex: false: the index may be -1). */
+export function summaryNoIndex(frame: Frame, _index: number, options: { scale?: number } | undefined): Omit<Summary, 'index'> & { positions: number } {
+  const { index: _, ...rest } = summary(frame, 0, options);
+  return { ...rest, positions: frame.positions.length };
+}
+
+/** Fails on the first frame with `atoms` atoms (a property of the frame, not of its index). */
+export function failOnAtoms(frame: Frame, _index: number, options: { atoms: number }): number {
+  if (frame.species.length === options.atoms) throw new RangeError(`job refused a frame of ${options.atoms} atoms`);
+  return frame.species.length;
+}
