@@ -1,7 +1,7 @@
 /**
  * Benchmark: time from a Slurm job's completion to ratchet advancing the stage, on the one-node test
- * cluster (test/slurm/cluster.sh: Debian's Slurm 22.05 on localhost, started here if it is not up and
- * stopped again at the end).
+ * cluster (test/slurm/cluster.sh: Debian's Slurm 22.05 on localhost, started through test/slurm/cluster.ts if it
+ * is not up, and stopped again at the end if it was started here).
  *
  *   npm run build && node --import tsx bench/slurm-latency.ts [--poll 30,5] [--rounds 3]
  *
@@ -21,9 +21,9 @@ import { cpus, loadavg } from 'node:os';
 import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { ledgerEvents, makeCampaign, removeCampaigns } from '../test/engine/fixture.js';
+import { ensureSlurm, stopIfStartedByTests } from '../test/slurm/cluster.js';
 
 const ROOT = fileURLToPath(new URL('..', import.meta.url));
-const CLUSTER = join(ROOT, 'test/slurm/cluster.sh');
 
 function arg(name: string, fallback: string): string {
   const i = process.argv.indexOf(`--${name}`);
@@ -32,11 +32,6 @@ function arg(name: string, fallback: string): string {
 const POLLS = arg('poll', '30,5').split(',').map(Number);
 const ROUNDS = Number(arg('rounds', '3'));
 
-function sinfoUp(): boolean {
-  const r = spawnSync('sinfo', ['-h', '-o', '%T'], { encoding: 'utf8', timeout: 20_000 });
-  return r.status === 0 && /idle|mixed|allocated/.test(r.stdout ?? '');
-}
-
 const median = (xs: number[]): number => {
   const s = [...xs].sort((a, b) => a - b);
   const m = s.length >> 1;
@@ -44,14 +39,11 @@ const median = (xs: number[]): number => {
 };
 const f2 = (x: number) => x.toFixed(2);
 
-let startedHere = false;
-if (!sinfoUp()) {
-  const r = spawnSync('bash', [CLUSTER, 'start'], { encoding: 'utf8', timeout: 180_000 });
-  if (r.status !== 0) {
-    console.error(`test/slurm/cluster.sh start failed (is Slurm installed? bash test/slurm/cluster.sh install):\n${r.stdout}\n${r.stderr}`);
-    process.exit(1);
-  }
-  startedHere = true;
+try {
+  ensureSlurm();
+} catch (err) {
+  console.error(`${(err as Error).message}\n(is Slurm installed? bash test/slurm/cluster.sh install)`);
+  process.exit(1);
 }
 
 try {
@@ -88,5 +80,5 @@ try {
   }
 } finally {
   removeCampaigns();
-  if (startedHere) spawnSync('bash', [CLUSTER, 'stop'], { timeout: 60_000 });
+  stopIfStartedByTests();
 }
