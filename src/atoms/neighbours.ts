@@ -20,6 +20,7 @@
  */
 import type { Pbc } from './frame.js';
 import { CellError, cellInverse, effectiveCell, isPeriodic, MinimumImager, perpendicularWidths } from './cell.js';
+import { kernelPairs } from './neighbours-kernel.js';
 
 /** What the neighbour search needs from a frame (a Frame is one). */
 export interface AtomsGeometry {
@@ -93,7 +94,7 @@ const WRAPPED = 0, XYZ = 1;
 const BIN = 0, BIN_START = 1, FILL = 2, ATOM = 3;
 
 /**
- * Work arrays of buildGrid kept between calls: for frames of a few thousand atoms, allocating (and zero-filling, and
+ * Work arrays of fillGrid kept between calls: for frames of a few thousand atoms, allocating (and zero-filling, and
  * later collecting) fresh typed arrays on every search costs about as much as the search. One search uses a scratch at
  * a time; a search started from inside a visitor gets a fresh one.
  */
@@ -127,7 +128,7 @@ const MAX_KEPT_SCRATCH = 16 << 20;
  * Everything about the grid that does not depend on where the atoms are (for a fully periodic system): bins, padding,
  * stencil and image shifts. Frames of one trajectory share one cell, so this is computed once per cell (gridPlan).
  */
-interface GridPlan {
+export interface GridPlan {
   h: Float64Array;
   inv: Float64Array;
   per: [boolean, boolean, boolean];
@@ -144,7 +145,8 @@ interface GridPlan {
 const planCache = new Map<string, GridPlan>();
 const PLAN_CACHE_SIZE = 16;
 
-function buildGrid(system: AtomsGeometry, cutoff: number, binFractionOption: number | undefined, scratch: GridScratch): Grid {
+/** The grid plan for a system (cached for fully periodic cells), after checking the input. */
+function planFor(system: AtomsGeometry, cutoff: number, binFractionOption: number | undefined): { n: number; plan: GridPlan } {
   const n = checkInput(system, cutoff);
   const cell = system.cell;
   const pbc = system.pbc;
@@ -162,7 +164,7 @@ function buildGrid(system: AtomsGeometry, cutoff: number, binFractionOption: num
       planCache.set(key, plan);
     }
   }
-  return fillGrid(system.positions, n, plan, scratch);
+  return { n, plan };
 }
 
 function makePlan(system: AtomsGeometry, n: number, cutoff: number, binFractionOption: number | undefined): GridPlan {
@@ -478,10 +480,13 @@ export function forEachPair(system: AtomsGeometry, cutoff: number, visit: PairVi
   if (binFraction !== undefined && (!(binFraction > 0) || !Number.isFinite(binFraction))) {
     throw new NeighbourError(`binFraction must be a positive finite number, got ${binFraction}`);
   }
+  const { n, plan } = planFor(system, cutoff, binFraction);
+  // the WebAssembly port of the loops below (same pairs, same order, same numbers), when it is available
+  if (kernelPairs(system.positions, n, plan, cutoff, visit)) return;
   const scratch = idleScratch ?? new GridScratch();
   idleScratch = null;
   try {
-    pairLoop(buildGrid(system, cutoff, binFraction, scratch), cutoff, visit);
+    pairLoop(fillGrid(system.positions, n, plan, scratch), cutoff, visit);
   } finally {
     idleScratch = scratch.bytes <= MAX_KEPT_SCRATCH ? scratch : new GridScratch();
   }

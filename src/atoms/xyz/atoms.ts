@@ -5,6 +5,7 @@
 import type { AtomColumn } from '../frame.js';
 import { XyzError, shown, type Where } from './errors.js';
 import { cursor, parseIntAt, parseRealAt, tokenText } from './numbers.js';
+import { parseAtomsFast } from './kernel.js';
 import type { Layout } from './properties.js';
 
 const SKIP = 0;
@@ -56,6 +57,8 @@ function isTrue(buf: Uint8Array, p: number, e: number): number {
  * Parse `natoms` atom lines starting at buf[start]. Every line must end with '\n' (the scanner guarantees
  * it, adding one at the end of a file that lacks it). `wanted` = names of the columns to keep besides
  * species and pos (null: all). `lastLineTruncated` marks a file whose last line had no newline (for messages).
+ * `end`: where the frame's lines end in buf (after the last '\n'), when known: the WebAssembly parser (kernel.ts)
+ * is tried first; whenever it gives up, the lines are parsed here (same values, and the exact errors).
  */
 export function parseAtoms(
   buf: Uint8Array,
@@ -66,7 +69,12 @@ export function parseAtoms(
   where: Where,
   lastLineOpen = -1,
   parsePositions = true,
+  end = -1,
 ): AtomBlock {
+  if (end >= 0) {
+    const fast = parseAtomsFast(buf, start, end, natoms, layout, wanted, parsePositions);
+    if (fast !== null) return fast;
+  }
   const ncols = layout.ncols;
   const species: string[] = new Array(natoms);
   const positions = new Float64Array(parsePositions ? 3 * natoms : 0);

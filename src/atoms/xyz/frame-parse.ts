@@ -21,7 +21,7 @@ export function parseFrame(buf: Buffer, span: FrameSpan, file: string, wanted: S
   const text = buf.toString('utf8', span.commentStart, commentEnd);
   const comment = parseComment(text, where);
   const layout = comment.properties !== null ? parseProperties(comment.properties, file, span.line + 1) : PLAIN_LAYOUT;
-  const block = parseAtoms(buf, span.atomsStart, span.natoms, layout, wanted, where, lastLineOpen, positions);
+  const block = parseAtoms(buf, span.atomsStart, span.natoms, layout, wanted, where, lastLineOpen, positions, span.end);
   let species = block.species;
   if (layout.species < 0 && block.z !== null) {
     species = new Array(span.natoms);
