@@ -9,8 +9,9 @@
  * every distance and vector are bit for bit those of the TypeScript code (test/atoms/neighbours-kernel.test.ts).
  *
  * Plan block at `plan` (offsets in bytes): f64 h[9] @0, inv[9] @72, origin[3] @144, scale[3] @168 (bins per unit of
- * fractional coordinate); i32 per[3] @192, nb[3] @204, g[3] @216, lo[3] @228, stencil length @240;
- * then the stencil (i32) at `stencil` and the image shift ranges (i32, 2 per interior bin of each axis) at `shifts`.
+ * fractional coordinate); i32 per[3] @192, nb[3] @204, g[3] @216, lo[3] @228, number of stencil rows @240;
+ * then the stencil rows at `rows` (i32 pairs: first and last linear bin offset; row 0 starts at the bin itself, see
+ * StencilRows in neighbours.ts) and the image shift ranges (i32, 2 per interior bin of each axis) at `shifts`.
  */
 
 /** Offsets within the plan block. */
@@ -142,52 +143,46 @@ export let pairCount: i32 = 0;
  * done), or -1 when one bin alone would overflow `hard` (the caller makes room and calls again from the same bin).
  */
 export function pairs(
-  plan: usize, stencil: usize, xyz: usize, atom: usize, binStart: usize, cutoff: f64, from: i32, soft: i32, hard: i32,
+  plan: usize, rows: usize, xyz: usize, atom: usize, binStart: usize, cutoff: f64, from: i32, soft: i32, hard: i32,
   outI: usize, outJ: usize, outD: usize, outV: usize,
 ): i32 {
   const nb0 = i(plan + NB, 0), nb1 = i(plan + NB, 1), nb2 = i(plan + NB, 2);
   const g1 = i(plan + G, 1), g2 = i(plan + G, 2);
   const lo0 = i(plan + LO, 0), lo1 = i(plan + LO, 1), lo2 = i(plan + LO, 2);
-  const ns = i(plan + NS, 0);
+  const nr = i(plan + NS, 0);
   const c2 = cutoff * cutoff;
   const total = nb0 * nb1 * nb2;
   let count: i32 = 0;
   pairCount = 0;
-  for (let lin = from; lin < total; lin++) {
-    if (count >= soft) {
-      pairCount = count;
-      return lin;
-    }
-    const b2 = lin % nb2;
-    const b01 = lin / nb2;
-    const b1 = b01 % nb1;
-    const b0 = b01 / nb1;
-    const bin = ((b0 + lo0) * g1 + (b1 + lo1)) * g2 + lo2 + b2;
-    const start = i(binStart, bin), end = i(binStart, bin + 1);
-    if (start == end) continue;
-    for (let a = start; a < end; a++) {
-      const xi = f(xyz, 3 * a), yi = f(xyz, 3 * a + 1), zi = f(xyz, 3 * a + 2);
-      for (let b = a + 1; b < end; b++) {
-        const dx = f(xyz, 3 * b) - xi, dy = f(xyz, 3 * b + 1) - yi, dz = f(xyz, 3 * b + 2) - zi;
-        const d2 = dx * dx + dy * dy + dz * dz;
-        if (d2 < c2) {
-          if (count >= hard) return -1;
-          emit(count++, i(atom, a), i(atom, b), Math.sqrt(d2), dx, dy, dz, outI, outJ, outD, outV);
+  let lin = from;
+  let b2 = from % nb2;
+  let b1 = (from / nb2) % nb1;
+  let b0 = from / (nb1 * nb2);
+  for (; b0 < nb0; b0++, b1 = 0) {
+    for (; b1 < nb1; b1++, b2 = 0) {
+      const rowBase = ((b0 + lo0) * g1 + (b1 + lo1)) * g2 + lo2;
+      for (; b2 < nb2; b2++, lin++) {
+        if (count >= soft) {
+          pairCount = count;
+          return lin;
         }
-      }
-    }
-    for (let t: i32 = 0; t < ns; t++) {
-      const nbin = bin + i(stencil, t);
-      const s0 = i(binStart, nbin), e = i(binStart, nbin + 1);
-      if (s0 == e) continue;
-      for (let a = start; a < end; a++) {
-        const xi = f(xyz, 3 * a), yi = f(xyz, 3 * a + 1), zi = f(xyz, 3 * a + 2);
-        for (let b = s0; b < e; b++) {
-          const dx = f(xyz, 3 * b) - xi, dy = f(xyz, 3 * b + 1) - yi, dz = f(xyz, 3 * b + 2) - zi;
-          const d2 = dx * dx + dy * dy + dz * dz;
-          if (d2 < c2) {
-            if (count >= hard) return -1;
-            emit(count++, i(atom, a), i(atom, b), Math.sqrt(d2), dx, dy, dz, outI, outJ, outD, outV);
+        const bin = rowBase + b2;
+        const start = i(binStart, bin), end = i(binStart, bin + 1);
+        if (start == end) continue;
+        for (let r: i32 = 0; r < nr; r++) {
+          const s0 = r == 0 ? -1 : i(binStart, bin + i(rows, 2 * r));
+          const e = i(binStart, bin + i(rows, 2 * r + 1) + 1);
+          if (s0 == e) continue;
+          for (let a = start; a < end; a++) {
+            const xi = f(xyz, 3 * a), yi = f(xyz, 3 * a + 1), zi = f(xyz, 3 * a + 2);
+            for (let b = r == 0 ? a + 1 : s0; b < e; b++) {
+              const dx = f(xyz, 3 * b) - xi, dy = f(xyz, 3 * b + 1) - yi, dz = f(xyz, 3 * b + 2) - zi;
+              const d2 = dx * dx + dy * dy + dz * dz;
+              if (d2 < c2) {
+                if (count >= hard) return -1;
+                emit(count++, i(atom, a), i(atom, b), Math.sqrt(d2), dx, dy, dz, outI, outJ, outD, outV);
+              }
+            }
           }
         }
       }
@@ -206,4 +201,78 @@ export function pairs(
     seti(outI, q, ib); seti(outJ, q, ia);
     setf(outV, 3 * q, -dx); setf(outV, 3 * q + 1, -dy); setf(outV, 3 * q + 2, -dz);
   }
+}
+
+/** Close pairs found by the last call of closePairs() (all of them, also those beyond the output capacity). */
+export let closeCount: i32 = 0;
+
+/**
+ * The first pass of minimumDistanceByGroup with contact limits (group: one i32 per atom), over all interior bins (pairs closer than `cutoff`, in
+ * pairLoop's order): per group pair (g <= h) the closest pair, ties broken by the lower (i, j), into best (f64
+ * distances, i32 atoms; the caller fills them with Infinity and -1 first); and every pair closer than
+ * limits[group(i) ng + group(j)] into the close lists (i <= j), at most `cap` of them (closeCount counts all).
+ */
+export function closePairs(
+  plan: usize, rows: usize, xyz: usize, atom: usize, binStart: usize, cutoff: f64, group: usize, ng: i32, limits: usize,
+  bestD: usize, bestI: usize, bestJ: usize, closeI: usize, closeJ: usize, closeD: usize, cap: i32,
+): void {
+  const nb0 = i(plan + NB, 0), nb1 = i(plan + NB, 1), nb2 = i(plan + NB, 2);
+  const g1 = i(plan + G, 1), g2 = i(plan + G, 2);
+  const lo0 = i(plan + LO, 0), lo1 = i(plan + LO, 1), lo2 = i(plan + LO, 2);
+  const nr = i(plan + NS, 0);
+  const c2 = cutoff * cutoff;
+  let count: i32 = 0;
+  for (let b0: i32 = 0; b0 < nb0; b0++) {
+    for (let b1: i32 = 0; b1 < nb1; b1++) {
+      const rowBase = ((b0 + lo0) * g1 + (b1 + lo1)) * g2 + lo2;
+      for (let b2: i32 = 0; b2 < nb2; b2++) {
+        const bin = rowBase + b2;
+        const start = i(binStart, bin), end = i(binStart, bin + 1);
+        if (start == end) continue;
+        for (let r: i32 = 0; r < nr; r++) {
+          const s0 = r == 0 ? -1 : i(binStart, bin + i(rows, 2 * r));
+          const e = i(binStart, bin + i(rows, 2 * r + 1) + 1);
+          if (s0 == e) continue;
+          for (let a = start; a < end; a++) {
+            const xi = f(xyz, 3 * a), yi = f(xyz, 3 * a + 1), zi = f(xyz, 3 * a + 2);
+            for (let b = r == 0 ? a + 1 : s0; b < e; b++) {
+              const dx = f(xyz, 3 * b) - xi, dy = f(xyz, 3 * b + 1) - yi, dz = f(xyz, 3 * b + 2) - zi;
+              const d2 = dx * dx + dy * dy + dz * dz;
+              if (d2 < c2) count = close(i(atom, a), i(atom, b), Math.sqrt(d2), count, group, ng, limits, bestD, bestI, bestJ, closeI, closeJ, closeD, cap);
+            }
+          }
+        }
+      }
+    }
+  }
+  closeCount = count;
+}
+
+/** One pair (atoms ia, ib in either order): the group minimum (record in neighbours.ts) and the limit check. */
+function close(
+  ia: i32, ib: i32, d: f64, count: i32, group: usize, ng: i32, limits: usize,
+  bestD: usize, bestI: usize, bestJ: usize, closeI: usize, closeJ: usize, closeD: usize, cap: i32,
+): i32 {
+  // the visitor's order: i <= j
+  const vi = ia <= ib ? ia : ib, vj = ia <= ib ? ib : ia;
+  const gi = i(group, vi), gj = i(group, vj);
+  let p = gi, q = gj;
+  let a = vi, b = vj;
+  if (p > q) {
+    const t = p; p = q; q = t;
+    a = vj; b = vi;
+  }
+  const key = p * ng + q;
+  const cur = f(bestD, key);
+  if (d < cur || (d == cur && (a < i(bestI, key) || (a == i(bestI, key) && b < i(bestJ, key))))) {
+    setf(bestD, key, d); seti(bestI, key, a); seti(bestJ, key, b);
+  }
+  const lim = f(limits, gi * ng + gj);
+  if (d < lim) {
+    if (count < cap) {
+      seti(closeI, count, vi); seti(closeJ, count, vj); setf(closeD, count, d);
+    }
+    count++;
+  }
+  return count;
 }

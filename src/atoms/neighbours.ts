@@ -20,7 +20,9 @@
  */
 import type { Pbc } from './frame.js';
 import { CellError, cellInverse, effectiveCell, isPeriodic, MinimumImager, perpendicularWidths } from './cell.js';
-import { kernelPairs } from './neighbours-kernel.js';
+import { kernelClosePairs, kernelPairs, type CloseList } from './neighbours-kernel.js';
+
+export type { CloseList } from './neighbours-kernel.js';
 
 /** What the neighbour search needs from a frame (a Frame is one). */
 export interface AtomsGeometry {
@@ -67,8 +69,19 @@ interface Grid {
   nb: [number, number, number];
   g: [number, number, number];
   lo: [number, number, number];
-  /** Linear offsets of the half stencil (no zero offset). */
-  stencil: Int32Array;
+  /** The half stencil as rows of consecutive bins (see StencilRows). */
+  rows: StencilRows;
+}
+
+/**
+ * The half stencil as runs ("rows") of bins that are consecutive along the last axis, hence consecutive in the sorted
+ * entries: row r covers linear bin offsets lo[r] .. hi[r]. Row 0 starts at the bin itself (offset 0): its atoms are
+ * compared with the atoms after them in the bin and with every atom of the following bins of the row. Fewer, longer
+ * inner loops than one per stencil bin (13 bins make 5 rows for a cutoff-sized bin).
+ */
+export interface StencilRows {
+  lo: Int32Array;
+  hi: Int32Array;
 }
 
 function checkInput(system: AtomsGeometry, cutoff: number): number {
@@ -137,7 +150,7 @@ export interface GridPlan {
   nb: [number, number, number];
   g: [number, number, number];
   lo: [number, number, number];
-  stencil: Int32Array;
+  rows: StencilRows;
   /** Per axis k and interior bin b: the image shifts S from shifts[k][2b] to shifts[k][2b + 1]. */
   shifts: [Int32Array, Int32Array, Int32Array];
 }
@@ -145,15 +158,20 @@ export interface GridPlan {
 const planCache = new Map<string, GridPlan>();
 const PLAN_CACHE_SIZE = 16;
 
-/** The grid plan for a system (cached for fully periodic cells), after checking the input. */
-function planFor(system: AtomsGeometry, cutoff: number, binFractionOption: number | undefined): { n: number; plan: GridPlan } {
-  const n = checkInput(system, cutoff);
+/** The last fully periodic plan looked up (consecutive frames of a trajectory share their cell): no key to build. */
+let lastPlan: { cell: Float64Array; n: number; cutoff: number; binFraction: number | undefined; plan: GridPlan } | null = null;
+
+/** The grid plan for a system (cached for fully periodic cells), after checking the input (unless `checked`). */
+function planFor(system: AtomsGeometry, cutoff: number, binFractionOption: number | undefined, checked = false): { n: number; plan: GridPlan } {
+  const n = checked ? system.positions.length / 3 : checkInput(system, cutoff);
   const cell = system.cell;
   const pbc = system.pbc;
   // A fully periodic plan depends only on the cell, the cutoff, the bin option and the atom count.
   let key: string | null = null;
   let plan: GridPlan | undefined;
   if (cell !== null && cell.length === 9 && pbc[0] && pbc[1] && pbc[2]) {
+    const last = lastPlan;
+    if (last !== null && last.n === n && last.cutoff === cutoff && last.binFraction === binFractionOption && sameCell(last.cell, cell)) return { n, plan: last.plan };
     key = `${n} ${cutoff} ${binFractionOption} ${cell[0]} ${cell[1]} ${cell[2]} ${cell[3]} ${cell[4]} ${cell[5]} ${cell[6]} ${cell[7]} ${cell[8]}`;
     plan = planCache.get(key);
   }
@@ -164,7 +182,13 @@ function planFor(system: AtomsGeometry, cutoff: number, binFractionOption: numbe
       planCache.set(key, plan);
     }
   }
+  if (key !== null && planCache.get(key) === plan) lastPlan = { cell: Float64Array.from(cell!), n, cutoff, binFraction: binFractionOption, plan };
   return { n, plan };
+}
+
+function sameCell(a: Float64Array, b: Float64Array): boolean {
+  for (let k = 0; k < 9; k++) if (!Object.is(a[k], b[k])) return false;
+  return true;
 }
 
 function makePlan(system: AtomsGeometry, n: number, cutoff: number, binFractionOption: number | undefined): GridPlan {
@@ -257,7 +281,7 @@ function makePlan(system: AtomsGeometry, n: number, cutoff: number, binFractionO
     edges[3 * k + 1] = h[3 * k + 1] * f;
     edges[3 * k + 2] = h[3 * k + 2] * f;
   }
-  const stencil = halfStencil(edges, m, g, cutoff * (1 + 1e-9) + 1e-12);
+  const rows = halfStencil(edges, m, g, cutoff * (1 + 1e-9) + 1e-12);
 
   // Image shifts that land an atom of interior bin b into the extended grid, per axis and bin index: the integers S
   // with -lo <= b + S nb < nb + hi, from range[k][2b] to range[k][2b + 1] (only S = 0 along a non-periodic axis).
@@ -283,7 +307,7 @@ function makePlan(system: AtomsGeometry, n: number, cutoff: number, binFractionO
     }
   }
 
-  return { h, inv, per, origin, range, nb, g, lo, stencil, shifts };
+  return { h, inv, per, origin, range, nb, g, lo, rows, shifts };
 }
 
 /** Bin the atoms of one frame (wrapped positions, periodic images) by the plan, into the scratch arrays. */
@@ -302,7 +326,7 @@ function fillGrid(pos: Float64Array, n: number, plan: GridPlan, scratch: GridScr
   const xyz = scratch.f64(XYZ, 3 * total);
   const atom = scratch.i32(ATOM, total);
   placeImages(p, bin, n, plan, fill, xyz, atom);
-  return { n, xyz, atom, binStart, nb: plan.nb, g, lo: plan.lo, stencil: plan.stencil };
+  return { n, xyz, atom, binStart, nb: plan.nb, g, lo: plan.lo, rows: plan.rows };
 }
 
 /** Wrapped Cartesian position (p) and interior bin per axis (bin) of each real atom. */
@@ -387,11 +411,13 @@ function placeImages(p: Float64Array, bin: Int32Array, n: number, plan: GridPlan
 }
 
 /**
- * Linear offsets of the bin offsets O (|O_k| <= m_k, lexicographically positive) whose bins can hold two points
- * closer than `reach`: the distance between bin parallelepipeds at offset O is min |sum_k u_k e_k| over
- * u_k in [O_k - 1, O_k + 1], a convex quadratic over a box, minimised exactly by enumerating its faces.
+ * The bin offsets O (|O_k| <= m_k, lexicographically positive) whose bins can hold two points closer than `reach`, as
+ * rows (StencilRows): the distance between bin parallelepipeds at offset O is min |sum_k u_k e_k| over
+ * u_k in [O_k - 1, O_k + 1], a convex quadratic over a box, minimised exactly by enumerating its faces. For fixed
+ * (O_0, O_1) the kept O_2 form an interval (a sublevel set of a convex function along a line); runs are split anyway
+ * should rounding ever break one, so no kept offset is lost.
  */
-function halfStencil(edges: Float64Array, m: [number, number, number], g: [number, number, number], reach: number): Int32Array {
+function halfStencil(edges: Float64Array, m: [number, number, number], g: [number, number, number], reach: number): StencilRows {
   const heights = perpendicularWidths(edges);
   const G = new Float64Array(9);
   for (let p = 0; p < 3; p++) {
@@ -400,9 +426,14 @@ function halfStencil(edges: Float64Array, m: [number, number, number], g: [numbe
     }
   }
   const reach2 = reach * reach;
-  const out: number[] = [];
+  const lo: number[] = [];
+  const hi: number[] = [];
   for (let o0 = 0; o0 <= m[0]; o0++) {
     for (let o1 = o0 === 0 ? 0 : -m[1]; o1 <= m[1]; o1++) {
+      const base = (o0 * g[1] + o1) * g[2];
+      // row 0 starts at the bin itself
+      let open = o0 === 0 && o1 === 0 ? 0 : null;
+      let last = 0;
       for (let o2 = o0 === 0 && o1 === 0 ? 1 : -m[2]; o2 <= m[2]; o2++) {
         // cheap decisions first: the box contains u = O (keep if that is within reach); perpendicular separation
         // of the two bins along any axis is a lower bound (drop if beyond reach); otherwise solve exactly
@@ -414,11 +445,28 @@ function halfStencil(edges: Float64Array, m: [number, number, number], g: [numbe
           const sep = Math.max((Math.abs(o0) - 1) * heights[0], (Math.abs(o1) - 1) * heights[1], (Math.abs(o2) - 1) * heights[2]);
           keep = !(sep * sep >= reach2) && boxMinNorm2(G, [o0, o1, o2]) < reach2;
         }
-        if (keep) out.push((o0 * g[1] + o1) * g[2] + o2);
+        if (keep && open !== null && o2 === last + 1) {
+          last = o2;
+        } else if (keep) {
+          if (open !== null) {
+            lo.push(base + open);
+            hi.push(base + last);
+          }
+          open = o2;
+          last = o2;
+        } else if (open !== null) {
+          lo.push(base + open);
+          hi.push(base + last);
+          open = null;
+        }
+      }
+      if (open !== null) {
+        lo.push(base + open);
+        hi.push(base + last);
       }
     }
   }
-  return Int32Array.from(out);
+  return { lo: Int32Array.from(lo), hi: Int32Array.from(hi) };
 }
 
 /**
@@ -493,9 +541,10 @@ export function forEachPair(system: AtomsGeometry, cutoff: number, visit: PairVi
 }
 
 function pairLoop(grid: Grid, cutoff: number, visit: PairVisitor): void {
-  const { xyz, atom, binStart, nb, g, lo, stencil } = grid;
+  const { xyz, atom, binStart, nb, g, lo, rows } = grid;
   const c2 = cutoff * cutoff;
-  const ns = stencil.length;
+  const rlo = rows.lo, rhi = rows.hi;
+  const nr = rlo.length;
   for (let b0 = 0; b0 < nb[0]; b0++) {
     for (let b1 = 0; b1 < nb[1]; b1++) {
       const rowBase = ((b0 + lo[0]) * g[1] + (b1 + lo[1])) * g[2] + lo[2];
@@ -503,25 +552,14 @@ function pairLoop(grid: Grid, cutoff: number, visit: PairVisitor): void {
         const bin = rowBase + b2;
         const start = binStart[bin], end = binStart[bin + 1];
         if (start === end) continue;
-        for (let a = start; a < end; a++) {
-          const xi = xyz[3 * a], yi = xyz[3 * a + 1], zi = xyz[3 * a + 2];
-          for (let b = a + 1; b < end; b++) {
-            const dx = xyz[3 * b] - xi, dy = xyz[3 * b + 1] - yi, dz = xyz[3 * b + 2] - zi;
-            const d2 = dx * dx + dy * dy + dz * dz;
-            if (d2 < c2) {
-              const i = atom[a], j = atom[b];
-              if (i <= j) visit(i, j, Math.sqrt(d2), dx, dy, dz);
-              else visit(j, i, Math.sqrt(d2), -dx, -dy, -dz);
-            }
-          }
-        }
-        for (let t = 0; t < ns; t++) {
-          const nbin = bin + stencil[t];
-          const s0 = binStart[nbin], e = binStart[nbin + 1];
+        for (let r = 0; r < nr; r++) {
+          // row 0 begins with the bin itself: each atom against the atoms after it
+          const s0 = r === 0 ? -1 : binStart[bin + rlo[r]];
+          const e = binStart[bin + rhi[r] + 1];
           if (s0 === e) continue;
           for (let a = start; a < end; a++) {
             const xi = xyz[3 * a], yi = xyz[3 * a + 1], zi = xyz[3 * a + 2];
-            for (let b = s0; b < e; b++) {
+            for (let b = r === 0 ? a + 1 : s0; b < e; b++) {
               const dx = xyz[3 * b] - xi, dy = xyz[3 * b + 1] - yi, dz = xyz[3 * b + 2] - zi;
               const d2 = dx * dx + dy * dy + dz * dz;
               if (d2 < c2) {
@@ -626,22 +664,34 @@ function shortestImage(cell: Float64Array | null, pbc: Pbc): number {
   return d;
 }
 
+/** The last searchScale result for a fully periodic cell (it depends on the cell and the atom count only). */
+let lastScale: { cell: Float64Array; n: number; scale: { start: number; bound: number; selfImage: number } } | null = null;
+
 function searchScale(system: AtomsGeometry): { start: number; bound: number; selfImage: number } {
   const n = system.positions.length / 3;
+  const cell = system.cell;
+  const fullyPeriodic = cell !== null && cell.length === 9 && system.pbc[0] && system.pbc[1] && system.pbc[2];
+  if (fullyPeriodic && lastScale !== null && lastScale.n === n && sameCell(lastScale.cell, cell)) return lastScale.scale;
   const h = effectiveCell(system.cell, system.pbc);
   const periodic = isPeriodic(system.cell, system.pbc);
   const per = periodic ? system.pbc : ([false, false, false] as Pbc);
   const inv = cellInverse(h);
   const w = perpendicularWidths(h);
-  const smin = [Infinity, Infinity, Infinity], smax = [-Infinity, -Infinity, -Infinity];
-  const pos = system.positions;
-  for (let a = 0; a < n; a++) {
-    const xx = pos[3 * a], yy = pos[3 * a + 1], zz = pos[3 * a + 2];
-    for (let k = 0; k < 3; k++) {
-      let sk = xx * inv[k] + yy * inv[3 + k] + zz * inv[6 + k];
-      if (per[k]) sk -= Math.floor(sk);
-      if (sk < smin[k]) smin[k] = sk;
-      if (sk > smax[k]) smax[k] = sk;
+  // Fractional extents of the wrapped positions: [0, 1] bounds them along periodic axes, so a fully periodic system
+  // needs no pass over its atoms (the bound below only has to be an upper bound).
+  const smin = [0, 0, 0], smax = [1, 1, 1];
+  if (!fullyPeriodic) {
+    smin.fill(Infinity);
+    smax.fill(-Infinity);
+    const pos = system.positions;
+    for (let a = 0; a < n; a++) {
+      const xx = pos[3 * a], yy = pos[3 * a + 1], zz = pos[3 * a + 2];
+      for (let k = 0; k < 3; k++) {
+        let sk = xx * inv[k] + yy * inv[3 + k] + zz * inv[6 + k];
+        if (per[k]) sk -= Math.floor(sk);
+        if (sk < smin[k]) smin[k] = sk;
+        if (sk > smax[k]) smax[k] = sk;
+      }
     }
   }
   let volume = 1;
@@ -658,7 +708,9 @@ function searchScale(system: AtomsGeometry): { start: number; bound: number; sel
   // selfImage away. So every pair that exists has its closest image within `bound`.
   const bound = Math.max(Math.sqrt(3 * diag2), selfImage < Infinity ? selfImage : 0) * (1 + 1e-9) + 1e-9;
   const start = Math.max(Math.cbrt(volume / Math.max(n, 1)), 1e-6);
-  return { start, bound, selfImage };
+  const scale = { start, bound, selfImage };
+  if (fullyPeriodic) lastScale = { cell: Float64Array.from(cell), n, scale };
+  return scale;
 }
 
 /**
@@ -693,6 +745,8 @@ export interface GroupClosest {
   distance: Float64Array;
   i: Int32Array;
   j: Int32Array;
+  /** With GroupSearchOptions.limits: every pair closer than its limit (i <= j), else null. */
+  close: CloseList | null;
 }
 
 /**
@@ -707,6 +761,12 @@ export interface GroupSearchOptions {
    */
   within?: number;
   visit?: PairVisitor;
+  /**
+   * Contact limits by group pair (G x G, Å, limits[g G + h] for an atom of group g and one of group h): every pair
+   * closer than its limit is listed in the result's `close`, from the same neighbour search (the first search radius
+   * is raised to the largest limit; the minima stay exact).
+   */
+  limits?: Float64Array;
 }
 
 export function minimumDistanceByGroup(system: AtomsGeometry, group: ArrayLike<number>, groupCount: number, options: GroupSearchOptions = {}): GroupClosest {
@@ -721,7 +781,10 @@ export function minimumDistanceByGroup(system: AtomsGeometry, group: ArrayLike<n
   }
   const distance = new Float64Array(G * G).fill(Infinity);
   const bi = new Int32Array(G * G).fill(-1), bj = new Int32Array(G * G).fill(-1);
-  if (n === 0) return { groups: G, distance, i: bi, j: bj };
+  const limits = options.limits;
+  if (limits !== undefined && limits.length !== G * G) throw new NeighbourError(`limits: expected ${G * G} values (groups x groups), found ${limits.length}`);
+  let close: CloseList | null = limits === undefined ? null : { i: new Int32Array(0), j: new Int32Array(0), d: new Float64Array(0), count: 0 };
+  if (n === 0) return { groups: G, distance, i: bi, j: bj, close };
   const periodic = isPeriodic(system.cell, system.pbc);
   // Which group pairs can have a pair at all.
   const wanted: number[] = [];
@@ -732,8 +795,14 @@ export function minimumDistanceByGroup(system: AtomsGeometry, group: ArrayLike<n
     }
   }
   const { start, bound } = searchScale(system);
-  const within = options.visit !== undefined && options.within !== undefined && options.within > 0 ? options.within : 0;
+  let within = options.visit !== undefined && options.within !== undefined && options.within > 0 ? options.within : 0;
   if (within > 0 && !Number.isFinite(within)) throw new NeighbourError(`within must be a finite distance in Å, got ${within}`);
+  if (limits !== undefined) {
+    for (let k = 0; k < limits.length; k++) {
+      if (!(limits[k] >= 0) || !Number.isFinite(limits[k])) throw new NeighbourError(`limits: expected finite distances in Å, found ${limits[k]} at ${k}`);
+      if (limits[k] > within) within = limits[k];
+    }
+  }
   let cutoff = Math.max(start, within * (1 + 1e-9));
   const firstCutoff = start;
   const record = (i: number, j: number, d: number): void => {
@@ -749,7 +818,9 @@ export function minimumDistanceByGroup(system: AtomsGeometry, group: ArrayLike<n
   let open = wanted.slice();
   const extra = within > 0 ? options.visit! : null;
   for (let pass = 0; ; pass++) {
-    if (pass === 0 && extra !== null) {
+    if (pass === 0 && limits !== undefined) {
+      close = closePass(system, cutoff, group, G, limits, distance, bi, bj, record, extra);
+    } else if (pass === 0 && extra !== null) {
       forEachPair(system, cutoff, (i, j, d, dx, dy, dz) => {
         record(i, j, d);
         extra(i, j, d, dx, dy, dz);
@@ -777,7 +848,46 @@ export function minimumDistanceByGroup(system: AtomsGeometry, group: ArrayLike<n
       bj[p * G + q] = bi[q * G + p];
     }
   }
-  return { groups: G, distance, i: bi, j: bj };
+  return { groups: G, distance, i: bi, j: bj, close };
+}
+
+/** The first pass with contact limits: minima recorded and close pairs listed (the kernel's, or in TypeScript). */
+function closePass(
+  system: AtomsGeometry,
+  cutoff: number,
+  group: ArrayLike<number>,
+  G: number,
+  limits: Float64Array,
+  distance: Float64Array,
+  bi: Int32Array,
+  bj: Int32Array,
+  record: (i: number, j: number, d: number) => void,
+  extra: PairVisitor | null,
+): CloseList {
+  if (extra === null) {
+    const { n, plan } = planFor(system, cutoff, undefined, true);
+    const fast = kernelClosePairs(system.positions, n, plan, cutoff, group, G, limits, distance, bi, bj);
+    if (fast !== null) return fast;
+  }
+  let ci = new Int32Array(16), cj = new Int32Array(16), cd = new Float64Array(16);
+  let count = 0;
+  forEachPair(system, cutoff, (i, j, d, dx, dy, dz) => {
+    record(i, j, d);
+    if (d < limits[group[i] * G + group[j]]) {
+      if (count === ci.length) {
+        const grow = <T extends Int32Array | Float64Array>(a: T): T => {
+          const b = new (a.constructor as new (n: number) => T)(2 * a.length);
+          b.set(a);
+          return b;
+        };
+        ci = grow(ci); cj = grow(cj); cd = grow(cd);
+      }
+      ci[count] = i; cj[count] = j; cd[count] = d;
+      count++;
+    }
+    extra?.(i, j, d, dx, dy, dz);
+  });
+  return { i: ci.subarray(0, count), j: cj.subarray(0, count), d: cd.subarray(0, count), count };
 }
 
 function directGroups(

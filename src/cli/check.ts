@@ -1,16 +1,7 @@
 import { InvalidArgumentError, type Command } from 'commander';
-import {
-  checkCommittee,
-  checkContacts,
-  checkDrift,
-  checkErrors,
-  COMMITTEE_DEFAULTS,
-  CONTACTS_DEFAULTS,
-  DRIFT_DEFAULTS,
-  ERRORS_DEFAULTS,
-  type GateResult,
-} from '../gates/index.js';
+import { COMMITTEE_DEFAULTS, CONTACTS_DEFAULTS, DRIFT_DEFAULTS, ERRORS_DEFAULTS } from '../gates/defaults.js';
 import { reportCheck } from '../gates/run.js';
+import type { GateResult } from '../gates/types.js';
 
 const number = (value: string): number => {
   const x = Number(value);
@@ -45,7 +36,10 @@ const pairLimit = (value: string, previous: Record<string, number> = {}): Record
   return out;
 };
 
-/** `ratchet check contacts|drift|errors|committee FILE... [options] [--json]`. */
+/**
+ * `ratchet check contacts|drift|errors|committee FILE... [options] [--json]`. Each gate's module is loaded when its
+ * command runs (start-up time counts when checking many files one by one).
+ */
 export function register(program: Command): void {
   const check = program
     .command('check')
@@ -68,8 +62,8 @@ export function register(program: Command): void {
     .option('--workers <n>', 'worker threads (default min(2, cpus))', count)
     .option('--json', 'print one JSON object')
     .action((files: string[], o) =>
-      run('contacts', o.json, () =>
-        checkContacts(files, {
+      run('contacts', o.json, async () =>
+        (await import('../gates/contacts.js')).checkContacts(files, {
           scale: o.scale,
           pairLimits: o.pairLimit,
           maxPerFrame: o.maxPerFrame,
@@ -104,8 +98,8 @@ export function register(program: Command): void {
     .option('--workers <n>', 'worker threads (default min(2, cpus))', count)
     .option('--json', 'print one JSON object')
     .action((files: string[], o) =>
-      run('drift', o.json, () =>
-        checkDrift(files, {
+      run('drift', o.json, async () =>
+        (await import('../gates/drift.js')).checkDrift(files, {
           format: o.format,
           timestep: o.timestep,
           dof: o.dof,
@@ -145,8 +139,8 @@ export function register(program: Command): void {
     .option('--force-rmse-fail <meV>', 'fail above this force RMSE, meV/Å', positive, ERRORS_DEFAULTS.forceRmseFail)
     .option('--json', 'print one JSON object')
     .action((reference: string, predicted: string, o) =>
-      run('errors', o.json, () =>
-        checkErrors(reference, predicted, {
+      run('errors', o.json, async () =>
+        (await import('../gates/errors.js')).checkErrors(reference, predicted, {
           refEnergyKey: o.refEnergyKey,
           predEnergyKey: o.predEnergyKey,
           refForcesKey: o.refForcesKey,
@@ -172,8 +166,8 @@ export function register(program: Command): void {
     .option('--workers <n>', 'worker threads (default min(2, cpus))', count)
     .option('--json', 'print one JSON object')
     .action((files: string[], o) =>
-      run('committee', o.json, () =>
-        checkCommittee(files, {
+      run('committee', o.json, async () =>
+        (await import('../gates/committee.js')).checkCommittee(files, {
           lower: o.lower,
           upper: o.upper,
           prefix: o.prefix,

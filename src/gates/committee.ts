@@ -11,20 +11,11 @@ import type { Frame } from '../atoms/frame.js';
 import { defaultWorkers, firstNonFinite, frameLabel, mapFiles } from './frames.js';
 import { GateInputError, type FileSpan, type GateResult } from './types.js';
 import { Judgement, fmt } from './verdict.js';
+import { COMMITTEE_DEFAULTS } from './defaults.js';
+
+export { COMMITTEE_DEFAULTS };
 
 export type Band = 'confident' | 'informative' | 'runaway';
-
-/**
- * Default window and limit. The window [0.05, 0.5) eV/Å is common practice for committee force deviations (no single
- * published source; set it from your own system). maxRunawayFraction is this tool's choice, not a published figure.
- */
-export const COMMITTEE_DEFAULTS = {
-  prefix: 'forces_',
-  lower: 0.05,
-  upper: 0.5,
-  /** More than this fraction of frames in the runaway band fails; any runaway frame warns. */
-  maxRunawayFraction: 0.5,
-} as const;
 
 export interface CommitteeFrameOptions {
   /** Per-atom arrays are `${prefix}0` ... (default forces_). */

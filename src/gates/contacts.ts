@@ -13,15 +13,9 @@ import { minimumDistanceByGroup, speciesGroups } from '../atoms/neighbours.js';
 import { defaultWorkers, firstNonFinite, frameLabel, mapFiles } from './frames.js';
 import { GateInputError, type FileSpan, type GateResult } from './types.js';
 import { Judgement, fmt } from './verdict.js';
+import { CONTACTS_DEFAULTS } from './defaults.js';
 
-export const CONTACTS_DEFAULTS = {
-  /** Limit = scale x sum of covalent radii (common practice). */
-  scale: 0.5,
-  /** Violations kept per frame (the closest relative to their limits); all are counted. */
-  maxPerFrame: 10,
-  /** Violations kept in total (earliest frames first); all are counted. */
-  maxViolations: 1000,
-} as const;
+export { CONTACTS_DEFAULTS };
 
 export interface ContactsFrameOptions {
   scale?: number;
@@ -156,36 +150,24 @@ export function contactsFrame(frame: Frame, _index: number, options: ContactsFra
     // a limit matrix by species index: no string work per pair
     const G = names.length;
     const limit = new Float64Array(G * G);
-    let cutoff = 0;
     for (let p = 0; p < G; p++) {
-      for (let q = 0; q < G; q++) {
-        const v = out.limits[pairKey(names[p], names[q])];
-        limit[p * G + q] = v;
-        if (v > cutoff) cutoff = v;
-      }
+      for (let q = 0; q < G; q++) limit[p * G + q] = out.limits[pairKey(names[p], names[q])];
     }
     // The closest pair of every species pair and, from the same neighbour search, every pair closer than its limit.
-    // Kept: the `cap` most severe violations by (distance / limit, i, j), whatever order the pairs come in.
-    const kept: { i: number; j: number; d: number; limit: number; r: number }[] = [];
-    const worse = (a: { r: number; i: number; j: number }, b: { r: number; i: number; j: number }) => a.r - b.r || a.i - b.i || a.j - b.j;
-    let worst: { r: number; i: number; j: number } | null = null;
-    const res = minimumDistanceByGroup(frame, group, G, {
-      within: cutoff,
-      visit: (i, j, d) => {
+    const res = minimumDistanceByGroup(frame, group, G, { limits: limit });
+    const close = res.close!;
+    out.violationCount = close.count;
+    // Kept: the `cap` most severe by (distance / limit, i, j), whatever order the pairs come in.
+    if (cap > 0 && close.count > 0) {
+      const kept: { i: number; j: number; d: number; limit: number; r: number }[] = [];
+      for (let q = 0; q < close.count; q++) {
+        const i = close.i[q], j = close.j[q], d = close.d[q];
         const lim = limit[group[i] * G + group[j]];
-        if (!(d < lim)) return;
-        out.violationCount++;
-        if (cap <= 0) return;
-        const v = { i, j, d, limit: lim, r: d / lim };
-        if (worst !== null && worse(v, worst) >= 0) return;
-        kept.push(v);
-        if (kept.length > 4 * cap + 16) {
-          kept.sort(worse);
-          kept.length = cap;
-          worst = kept[cap - 1];
-        }
-      },
-    });
+        kept.push({ i, j, d, limit: lim, r: d / lim });
+      }
+      kept.sort((a, b) => a.r - b.r || a.i - b.i || a.j - b.j);
+      out.violations = kept.slice(0, cap).map((v) => ({ i: v.i, j: v.j, species: [frame.species[v.i], frame.species[v.j]], distance: v.d, limit: v.limit }));
+    }
     for (let p = 0; p < G; p++) {
       for (let q = p; q < G; q++) {
         const key = p * G + q;
@@ -197,8 +179,6 @@ export function contactsFrame(frame: Frame, _index: number, options: ContactsFra
         if (out.min === null || d < out.min.distance) out.min = { distance: d, i: Math.min(i, j), j: Math.max(i, j) };
       }
     }
-    kept.sort(worse);
-    out.violations = kept.slice(0, cap).map((v) => ({ i: v.i, j: v.j, species: [frame.species[v.i], frame.species[v.j]], distance: v.d, limit: v.limit }));
   } catch (err) {
     out.missing = (err as Error).message;
   }

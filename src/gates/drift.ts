@@ -18,22 +18,9 @@ import { firstNonFinite, frameLabel, infoNumber, mapFiles, defaultWorkers } from
 import { findColumn, readThermoTable, type ThermoTable } from './thermo.js';
 import { GateInputError, type FileSpan, type GateResult } from './types.js';
 import { Judgement, fmt } from './verdict.js';
+import { DRIFT_DEFAULTS } from './defaults.js';
 
-/**
- * Default limits. Common practice (orders of magnitude, no single published source; set your own):
- * a well-behaved NVE run with a sensible time step drifts far less than 0.1 meV/atom/ps (i.e. 100 meV/atom/ns),
- * and its total energy stays within a few meV/atom of the start.
- */
-export const DRIFT_DEFAULTS = {
-  /** |slope| above this warns (meV/atom/ps). */
-  slopeWarn: 0.1,
-  /** |slope| above this fails (meV/atom/ps). */
-  slopeFail: 1.0,
-  /** max |E(t) - E(0)| above this warns (meV/atom). */
-  excursionWarn: 10,
-  /** max |E(t) - E(0)| above this fails (meV/atom). */
-  excursionFail: 100,
-} as const;
+export { DRIFT_DEFAULTS };
 
 /** Where each frame's numbers are (extended XYZ keys). */
 export interface DriftFrameOptions {
@@ -370,7 +357,6 @@ export function summarizeDrift(samples: DriftSample[], options: DriftOptions = {
     options,
   );
 }
-
 
 const TIME_NAMES = ['time', 'time_fs', 't', 'simulation_time'];
 const STEP_NAMES = ['step', 'steps', 'nstep', 'timestep', 'time_step'];

@@ -13,19 +13,9 @@ import { readFrames } from '../atoms/xyz/reader.js';
 import { firstNonFinite, infoNumber } from './frames.js';
 import { GateInputError, type GateResult } from './types.js';
 import { Judgement, fmt } from './verdict.js';
+import { ERRORS_DEFAULTS } from './defaults.js';
 
-/**
- * Default limits on the RMSEs. Common practice, orders of magnitude only (no single published source): potentials
- * in use typically reach a few meV/atom in energy and 50-150 meV/Å in forces; set limits fit for your system.
- */
-export const ERRORS_DEFAULTS = {
-  energyRmseWarn: 10,
-  energyRmseFail: 50,
-  forceRmseWarn: 150,
-  forceRmseFail: 500,
-  /** Å; positions written with 5 or more decimals agree to this. */
-  positionTolerance: 1e-4,
-} as const;
+export { ERRORS_DEFAULTS };
 
 export interface ErrorsFrameOptions {
   /** Info key of the energy (eV) in the reference / predicted files (default energy). */

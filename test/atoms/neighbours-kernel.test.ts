@@ -7,7 +7,7 @@
 import { afterEach, describe, expect, it } from 'vitest';
 import { cellFromParameters } from '../../src/atoms/cell.js';
 import type { Pbc } from '../../src/atoms/frame.js';
-import { forEachPair, minimumDistance, type AtomsGeometry } from '../../src/atoms/neighbours.js';
+import { forEachPair, minimumDistance, minimumDistanceByGroup, type AtomsGeometry } from '../../src/atoms/neighbours.js';
 import { neighbourKernelStats } from '../../src/atoms/neighbours-kernel.js';
 import { loadKernel, setKernels } from '../../src/atoms/wasm.js';
 import { bruteForcePairs, rng } from './geometry-helpers.js';
@@ -119,5 +119,66 @@ describe('the WebAssembly neighbour search', () => {
     ).toThrow('stop');
     // the kernel is usable again
     expect(rows(sys, 3, true)).toEqual(rows(sys, 3, false));
+  });
+
+  it('finds the same group minima and the same close pairs (contact limits) as the TypeScript pass', () => {
+    const r = rng(99);
+    const before = neighbourKernelStats().searches;
+    let ran = 0;
+    let closeSeen = 0;
+    for (let t = 0; t < 24; t++) {
+      let cell: Float64Array;
+      try {
+        cell = cellFromParameters(6 + r() * 10, 6 + r() * 10, 6 + r() * 10, 40 + r() * 100, 40 + r() * 100, 40 + r() * 100);
+      } catch {
+        continue;
+      }
+      const n = 2 + Math.floor(r() * 300);
+      const sys = t % 5 === 4 ? system(500 + t, n, null, [false, false, false]) : system(500 + t, n, cell, PBCS[t % 4]);
+      const G = 1 + (t % 4);
+      const group = Int32Array.from({ length: n }, () => Math.floor(r() * G));
+      const limits = new Float64Array(G * G);
+      for (let p = 0; p < G; p++) for (let q = p; q < G; q++) limits[p * G + q] = limits[q * G + p] = 0.3 + r() * 1.5;
+      setKernels(true);
+      const fast = minimumDistanceByGroup(sys, group, G, { limits });
+      setKernels(false);
+      const ts = minimumDistanceByGroup(sys, group, G, { limits });
+      setKernels(true);
+      expect([...fast.distance]).toEqual([...ts.distance]);
+      expect([...fast.i]).toEqual([...ts.i]);
+      expect([...fast.j]).toEqual([...ts.j]);
+      expect(fast.close!.count).toBe(ts.close!.count);
+      expect([...fast.close!.i]).toEqual([...ts.close!.i]);
+      expect([...fast.close!.j]).toEqual([...ts.close!.j]);
+      expect([...fast.close!.d]).toEqual([...ts.close!.d]);
+      // the close pairs are exactly the pairs of a search at each pair's own limit (an independent listing)
+      const want: string[] = [];
+      forEachPair(sys, Math.max(...limits) + 1e-9, (i, j, d) => {
+        if (d < limits[group[i] * G + group[j]]) want.push(`${i} ${j} ${d}`);
+      });
+      const got = [...fast.close!.i].map((i, q) => `${i} ${fast.close!.j[q]} ${fast.close!.d[q]}`);
+      expect(got.sort()).toEqual(want.sort());
+      closeSeen += fast.close!.count;
+      ran++;
+    }
+    expect(closeSeen).toBeGreaterThan(50);
+    // (each group search runs one kernel pass at least, unless a pass at a larger cutoff follows in TypeScript)
+    expect(neighbourKernelStats().searches - before).toBeGreaterThanOrEqual(ran);
+  });
+
+  it('hands a frame with more close pairs than it lists (a collapsed frame) to the TypeScript pass, with the same result', () => {
+    // 3000 atoms in a 12 Å box with a 2 Å limit: about 90,000 close pairs, more than the kernel lists (65,536)
+    const cell = cellFromParameters(12, 12, 12, 90, 90, 90);
+    const sys = system(17, 3000, cell, [true, true, true]);
+    const group = new Int32Array(3000);
+    const limits = Float64Array.of(2);
+    const fast = minimumDistanceByGroup(sys, group, 1, { limits });
+    setKernels(false);
+    const ts = minimumDistanceByGroup(sys, group, 1, { limits });
+    setKernels(true);
+    expect(fast.close!.count).toBeGreaterThan(65_536);
+    expect(fast.close!.count).toBe(ts.close!.count);
+    expect(Buffer.from(fast.close!.d.buffer, fast.close!.d.byteOffset, fast.close!.d.byteLength).equals(Buffer.from(ts.close!.d.buffer, ts.close!.d.byteOffset, ts.close!.d.byteLength))).toBe(true);
+    expect(fast.distance[0]).toBe(ts.distance[0]);
   });
 });
