@@ -1,17 +1,9 @@
 #!/usr/bin/env node
-import { Command } from 'commander';
-import { registerCommands } from './commands.js';
-import { VERSION } from '../version.js';
+/**
+ * Entry point of the `ratchet` command. Before the command line itself loads, a `check` of big files starts its
+ * worker threads (prestart.ts), so that their start-up overlaps the loading of the program.
+ */
+import { prestart } from './prestart.js';
 
-const program = new Command();
-program
-  .name('ratchet')
-  .description('Run and check active-learning campaigns for machine-learned interatomic potentials.')
-  .version(VERSION)
-  // Usage errors (unknown option, missing argument) are bad input: exit 2. Help and version exit 0.
-  .exitOverride((err) => process.exit(err.exitCode === 0 ? 0 : 2));
-registerCommands(program);
-program.parseAsync(process.argv).catch((err: unknown) => {
-  process.stderr.write(`ratchet: ${err instanceof Error ? err.message : String(err)}\n`);
-  process.exitCode = 2;
-});
+prestart(process.argv.slice(2));
+await import('./main.js');

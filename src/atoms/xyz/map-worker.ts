@@ -10,19 +10,36 @@ import { parseFrame } from './frame-parse.js';
 import type { FrameSpan } from './scanner.js';
 import { SPAN_FIELDS, serializeError, type BatchMessage, type FrameJob, type RangeMessage, type RangeReply, type ReplyMessage } from './map-protocol.js';
 import { guessFrameStart, parseRange, type RangeScratch } from './range.js';
+import type { JobMessage } from './spare.js';
 
-const { file, job } = workerData as { file: string; job: FrameJob };
+/**
+ * The job: from workerData, or (a spare worker started ahead of need, see spare.ts) from the first message, after
+ * loading the modules it was told to preload.
+ */
 const port = parentPort!;
-const wanted = job.columns ? new Set(job.columns) : null;
-const positions = job.positions ?? true;
+const data = workerData as { file: string | null; job: FrameJob | null; preload?: string[] };
+let file = '';
+let job!: FrameJob;
+let wanted: Set<string> | null = null;
+let positions = true;
+let ready!: Promise<(frame: Frame, index: number, options: unknown) => unknown>;
 
-const ready: Promise<(frame: Frame, index: number, options: unknown) => unknown> = (async () => {
-  const mod = (await import(job.module)) as Record<string, unknown>;
-  const fn = mod[job.fn];
-  if (typeof fn !== 'function') throw new Error(`${job.module} does not export a function '${job.fn}'`);
-  return fn as (frame: Frame, index: number, options: unknown) => unknown;
-})();
-ready.catch(() => undefined);
+function configure(f: string, j: FrameJob): void {
+  file = f;
+  job = j;
+  wanted = job.columns ? new Set(job.columns) : null;
+  positions = job.positions ?? true;
+  ready = (async () => {
+    const mod = (await import(job.module)) as Record<string, unknown>;
+    const fn = mod[job.fn];
+    if (typeof fn !== 'function') throw new Error(`${job.module} does not export a function '${job.fn}'`);
+    return fn as (frame: Frame, index: number, options: unknown) => unknown;
+  })();
+  ready.catch(() => undefined);
+}
+
+if (data.job !== null) configure(data.file!, data.job);
+else for (const url of data.preload ?? []) import(url).catch(() => undefined);
 
 let handle: Promise<FileHandle> | null = null;
 const scratch: RangeScratch = {};
@@ -45,9 +62,11 @@ async function range(msg: RangeMessage): Promise<RangeReply> {
   }
 }
 
-port.on('message', async (m: BatchMessage | RangeMessage | { kind: 'close' }) => {
+port.on('message', async (m: BatchMessage | RangeMessage | JobMessage | { kind: 'close' }) => {
   if ('kind' in m) {
-    if (m.kind === 'range') {
+    if (m.kind === 'job') {
+      configure(m.file, m.job as FrameJob);
+    } else if (m.kind === 'range') {
       queue = queue.then(async () => port.postMessage(await range(m)));
     } else {
       queue = queue.then(async () => {

@@ -39,6 +39,7 @@ import { guessFrameStart, parseRange, type RangeBase, type RangeScratch } from '
 import { readFrames } from './reader.js';
 import { END, FrameScanner, type FrameSpan } from './scanner.js';
 import { openSource } from './source.js';
+import { takeSpareWorker } from './spare.js';
 
 export type { FrameJob } from './map-protocol.js';
 
@@ -147,6 +148,16 @@ const { workerData } = require('node:worker_threads');
 })().catch((err) => { setImmediate(() => { throw err; }); });
 `;
 
+/** A worker thread for the job: a spare one started ahead of need (spare.ts) when there is one, else a new one. */
+function startWorker(launch: Launch, path: string, job: FrameJob): Worker {
+  if (!launch.eval) {
+    const spare = takeSpareWorker(launch.entry, path, job);
+    if (spare !== null) return spare;
+  }
+  const workerData = { file: path, job, __boot: launch.boot };
+  return launch.eval ? new Worker(launch.entry as string, { eval: true, workerData, execArgv: [] }) : new Worker(launch.entry, { workerData });
+}
+
 /** Worker entry and loader; null when TypeScript is involved and no tsx loader can be found. */
 function workerLaunch(job: FrameJob): Launch | null {
   const here = import.meta.url;
@@ -224,10 +235,7 @@ async function parallel<R>(
   };
 
   for (let k = 0; k < threads - 1; k++) {
-    const workerData = { file: path, job, __boot: launch.boot };
-    const worker = launch.eval
-      ? new Worker(launch.entry as string, { eval: true, workerData, execArgv: [] })
-      : new Worker(launch.entry, { workerData });
+    const worker = startWorker(launch, path, job);
     const slot: Slot = { worker, outstanding: 0 };
     worker.on('message', (msg: ReplyMessage) => {
       slot.outstanding--;
@@ -419,10 +427,7 @@ async function ranges<R>(path: string, size: number, job: FrameJob, fn: JobFn<R>
   };
 
   for (let w = 0; w < threads - 1; w++) {
-    const workerData = { file: path, job, __boot: launch.boot };
-    const worker = launch.eval
-      ? new Worker(launch.entry as string, { eval: true, workerData, execArgv: [] })
-      : new Worker(launch.entry, { workerData });
+    const worker = startWorker(launch, path, job);
     let closed!: () => void;
     const slot = { worker, outstanding: 0, closed: new Promise<void>((resolve) => (closed = resolve)) };
     worker.on('message', (msg: RangeReply | { kind: 'closed' }) => {

@@ -152,4 +152,22 @@ describe('mapFrames', () => {
     expect(par).toEqual(seq);
     expect(seq.length).toBe(120);
   });
+
+  it.skipIf(!existsSync(dist))('takes a worker started ahead of need (as `ratchet check` does) in both parallel modes, same results', async () => {
+    const mod = (await import(pathToFileURL(dist).href)) as typeof import('../../../src/atoms/xyz/map.js');
+    const spare = (await import(new URL('../../../dist/atoms/xyz/spare.js', import.meta.url).href)) as typeof import('../../../src/atoms/xyz/spare.js');
+    const jsJob = join(dir, 'job-spare.mjs');
+    writeFileSync(jsJob, 'export function count(frame, index) { let s = 0; for (const x of frame.positions) s += x; return [index, frame.species.length, s]; }\n');
+    const jsJobUrl = pathToFileURL(jsJob).href;
+    const seq = await mod.mapFrames(plain, { module: jsJobUrl, fn: 'count' }, { workers: 1 });
+    for (const usesIndex of [true, false]) {
+      spare.startSpareWorkers(1, [jsJobUrl]);
+      expect(spare.spareWorkerCount()).toBe(1);
+      const par = await mod.mapFrames<unknown[]>(plain, { module: jsJobUrl, fn: 'count', usesIndex }, { workers: 2, batchBytes: BATCH, rangeBytes: BATCH, callerParses: false });
+      expect(spare.spareWorkerCount()).toBe(0);
+      expect(mod.lastMapStats.mode).toBe(usesIndex ? 'parallel' : 'ranges');
+      // range-split mode calls the job with index -1 for frames of ranges parsed ahead: compare the rest
+      expect(par.map((r) => (r as number[]).slice(usesIndex ? 0 : 1))).toEqual(seq.map((r) => (r as number[]).slice(usesIndex ? 0 : 1)));
+    }
+  });
 });
