@@ -135,6 +135,8 @@ export function place(plan: usize, shifts: usize, n: i32, wrapped: usize, binOf:
 
 /** Pairs written by the last call of pairs(). */
 export let pairCount: i32 = 0;
+/** Close pairs found by the last call of closePairs() (all of them, also those beyond the output capacity). */
+export let closeCount: i32 = 0;
 
 /**
  * List the pairs closer than `cutoff` found from interior bins `from`, from + 1, ... (bins numbered (b0 nb1 + b1) nb2
@@ -145,6 +147,29 @@ export let pairCount: i32 = 0;
 export function pairs(
   plan: usize, rows: usize, xyz: usize, atom: usize, binStart: usize, cutoff: f64, from: i32, soft: i32, hard: i32,
   outI: usize, outJ: usize, outD: usize, outV: usize,
+): i32 {
+  return walk(false, plan, rows, xyz, atom, binStart, cutoff, from, soft, hard, outI, outJ, outD, outV, 0, 0, 0, 0, 0, 0);
+}
+
+/**
+ * The first pass of minimumDistanceByGroup with contact limits (group: one i32 per atom), over all interior bins
+ * (pairs closer than `cutoff`, in pairLoop's order): per group pair (g <= h) the closest pair, ties broken by the lower
+ * (i, j), into best (f64 distances, i32 atoms; the caller fills them with Infinity and -1 first); and every pair closer
+ * than limits[group(i) ng + group(j)] into the close lists (i <= j, distance), at most `cap` of them (closeCount counts
+ * all).
+ */
+export function closePairs(
+  plan: usize, rows: usize, xyz: usize, atom: usize, binStart: usize, cutoff: f64, group: usize, ng: i32, limits: usize,
+  bestD: usize, bestI: usize, bestJ: usize, closeI: usize, closeJ: usize, closeD: usize, cap: i32,
+): void {
+  closeCount = 0;
+  walk(true, plan, rows, xyz, atom, binStart, cutoff, 0, i32.MAX_VALUE, cap, closeI, closeJ, closeD, 0, group, ng, limits, bestD, bestI, bestJ);
+}
+
+/** The pair loop of both: `grouped` false lists pairs (pairs()), true keeps group minima and close pairs (closePairs()). */
+function walk(
+  grouped: bool, plan: usize, rows: usize, xyz: usize, atom: usize, binStart: usize, cutoff: f64, from: i32, soft: i32, hard: i32,
+  outI: usize, outJ: usize, outD: usize, outV: usize, group: usize, ng: i32, limits: usize, bestD: usize, bestI: usize, bestJ: usize,
 ): i32 {
   const nb0 = i(plan + NB, 0), nb1 = i(plan + NB, 1), nb2 = i(plan + NB, 2);
   const g1 = i(plan + G, 1), g2 = i(plan + G, 2);
@@ -170,6 +195,7 @@ export function pairs(
         const start = i(binStart, bin), end = i(binStart, bin + 1);
         if (start == end) continue;
         for (let r: i32 = 0; r < nr; r++) {
+          // row 0 begins with the bin itself: each atom against the atoms after it
           const s0 = r == 0 ? -1 : i(binStart, bin + i(rows, 2 * r));
           const e = i(binStart, bin + i(rows, 2 * r + 1) + 1);
           if (s0 == e) continue;
@@ -179,8 +205,12 @@ export function pairs(
               const dx = f(xyz, 3 * b) - xi, dy = f(xyz, 3 * b + 1) - yi, dz = f(xyz, 3 * b + 2) - zi;
               const d2 = dx * dx + dy * dy + dz * dz;
               if (d2 < c2) {
-                if (count >= hard) return -1;
-                emit(count++, i(atom, a), i(atom, b), Math.sqrt(d2), dx, dy, dz, outI, outJ, outD, outV);
+                if (grouped) {
+                  count = close(i(atom, a), i(atom, b), Math.sqrt(d2), count, group, ng, limits, bestD, bestI, bestJ, outI, outJ, outD, hard);
+                } else {
+                  if (count >= hard) return -1;
+                  emit(count++, i(atom, a), i(atom, b), Math.sqrt(d2), dx, dy, dz, outI, outJ, outD, outV);
+                }
               }
             }
           }
@@ -188,7 +218,8 @@ export function pairs(
       }
     }
   }
-  pairCount = count;
+  if (grouped) closeCount = count;
+  else pairCount = count;
   return total;
 }
 
@@ -201,51 +232,6 @@ export function pairs(
     seti(outI, q, ib); seti(outJ, q, ia);
     setf(outV, 3 * q, -dx); setf(outV, 3 * q + 1, -dy); setf(outV, 3 * q + 2, -dz);
   }
-}
-
-/** Close pairs found by the last call of closePairs() (all of them, also those beyond the output capacity). */
-export let closeCount: i32 = 0;
-
-/**
- * The first pass of minimumDistanceByGroup with contact limits (group: one i32 per atom), over all interior bins (pairs closer than `cutoff`, in
- * pairLoop's order): per group pair (g <= h) the closest pair, ties broken by the lower (i, j), into best (f64
- * distances, i32 atoms; the caller fills them with Infinity and -1 first); and every pair closer than
- * limits[group(i) ng + group(j)] into the close lists (i <= j), at most `cap` of them (closeCount counts all).
- */
-export function closePairs(
-  plan: usize, rows: usize, xyz: usize, atom: usize, binStart: usize, cutoff: f64, group: usize, ng: i32, limits: usize,
-  bestD: usize, bestI: usize, bestJ: usize, closeI: usize, closeJ: usize, closeD: usize, cap: i32,
-): void {
-  const nb0 = i(plan + NB, 0), nb1 = i(plan + NB, 1), nb2 = i(plan + NB, 2);
-  const g1 = i(plan + G, 1), g2 = i(plan + G, 2);
-  const lo0 = i(plan + LO, 0), lo1 = i(plan + LO, 1), lo2 = i(plan + LO, 2);
-  const nr = i(plan + NS, 0);
-  const c2 = cutoff * cutoff;
-  let count: i32 = 0;
-  for (let b0: i32 = 0; b0 < nb0; b0++) {
-    for (let b1: i32 = 0; b1 < nb1; b1++) {
-      const rowBase = ((b0 + lo0) * g1 + (b1 + lo1)) * g2 + lo2;
-      for (let b2: i32 = 0; b2 < nb2; b2++) {
-        const bin = rowBase + b2;
-        const start = i(binStart, bin), end = i(binStart, bin + 1);
-        if (start == end) continue;
-        for (let r: i32 = 0; r < nr; r++) {
-          const s0 = r == 0 ? -1 : i(binStart, bin + i(rows, 2 * r));
-          const e = i(binStart, bin + i(rows, 2 * r + 1) + 1);
-          if (s0 == e) continue;
-          for (let a = start; a < end; a++) {
-            const xi = f(xyz, 3 * a), yi = f(xyz, 3 * a + 1), zi = f(xyz, 3 * a + 2);
-            for (let b = r == 0 ? a + 1 : s0; b < e; b++) {
-              const dx = f(xyz, 3 * b) - xi, dy = f(xyz, 3 * b + 1) - yi, dz = f(xyz, 3 * b + 2) - zi;
-              const d2 = dx * dx + dy * dy + dz * dz;
-              if (d2 < c2) count = close(i(atom, a), i(atom, b), Math.sqrt(d2), count, group, ng, limits, bestD, bestI, bestJ, closeI, closeJ, closeD, cap);
-            }
-          }
-        }
-      }
-    }
-  }
-  closeCount = count;
 }
 
 /** One pair (atoms ia, ib in either order): the group minimum (record in neighbours.ts) and the limit check. */
