@@ -816,7 +816,7 @@ export function minimumDistanceByGroup(system: AtomsGeometry, group: ArrayLike<n
     }
   };
   let open = wanted.slice();
-  const extra = within > 0 ? options.visit! : null;
+  const extra = within > 0 && options.visit !== undefined ? options.visit : null;
   for (let pass = 0; ; pass++) {
     if (pass === 0 && limits !== undefined) {
       close = closePass(system, cutoff, group, G, limits, distance, bi, bj, record, extra);

@@ -20,11 +20,6 @@ interface WasmApi {
   Instance: new (module: object, imports: object) => { exports: Record<string, unknown> };
 }
 
-export interface LoadedKernel<E> {
-  exports: E;
-  error: null;
-}
-
 const loaded = new Map<string, { exports: unknown } | { error: string }>();
 let enabled = process.env.RATCHET_KERNELS !== 'off';
 
