@@ -162,6 +162,16 @@ export interface CloseList {
   count: number;
 }
 
+/** The state of minimumDistanceByGroup's first pass: groups, limits (G x G, Å) and the minima so far (G x G). */
+export interface GroupMinima {
+  group: ArrayLike<number>;
+  G: number;
+  limits: Float64Array;
+  distance: Float64Array;
+  bi: Int32Array;
+  bj: Int32Array;
+}
+
 /** Close pairs listed by the kernel per search at most; beyond, the TypeScript pass runs (a blown-up frame). */
 const CLOSE_CAP = 1 << 16;
 
@@ -169,18 +179,8 @@ const CLOSE_CAP = 1 << 16;
  * The first pass of minimumDistanceByGroup with contact limits, in the kernel: updates the group minima (distance, i, j;
  * G x G, only g <= h entries) and returns the close pairs; null when the kernel is not used (nothing was changed).
  */
-export function kernelClosePairs(
-  positions: Float64Array,
-  n: number,
-  plan: GridPlan,
-  cutoff: number,
-  group: ArrayLike<number>,
-  G: number,
-  limits: Float64Array,
-  distance: Float64Array,
-  bi: Int32Array,
-  bj: Int32Array,
-): CloseList | null {
+export function kernelClosePairs(positions: Float64Array, n: number, plan: GridPlan, cutoff: number, m: GroupMinima): CloseList | null {
+  const { group, G, limits, distance, bi, bj } = m;
   if (busy || !kernelsEnabled() || limits.length !== G * G) return null;
   const k = load();
   if (k === null) return null;

@@ -20,7 +20,7 @@
  */
 import type { Pbc } from './frame.js';
 import { CellError, cellInverse, effectiveCell, isPeriodic, MinimumImager, perpendicularWidths } from './cell.js';
-import { kernelClosePairs, kernelPairs, type CloseList } from './neighbours-kernel.js';
+import { kernelClosePairs, kernelPairs, type CloseList, type GroupMinima } from './neighbours-kernel.js';
 
 export type { CloseList } from './neighbours-kernel.js';
 
@@ -819,7 +819,7 @@ export function minimumDistanceByGroup(system: AtomsGeometry, group: ArrayLike<n
   const extra = within > 0 && options.visit !== undefined ? options.visit : null;
   for (let pass = 0; ; pass++) {
     if (pass === 0 && limits !== undefined) {
-      close = closePass(system, cutoff, group, G, limits, distance, bi, bj, record, extra);
+      close = closePass(system, cutoff, { group, G, limits, distance, bi, bj }, record, extra);
     } else if (pass === 0 && extra !== null) {
       forEachPair(system, cutoff, (i, j, d, dx, dy, dz) => {
         record(i, j, d);
@@ -852,21 +852,11 @@ export function minimumDistanceByGroup(system: AtomsGeometry, group: ArrayLike<n
 }
 
 /** The first pass with contact limits: minima recorded and close pairs listed (the kernel's, or in TypeScript). */
-function closePass(
-  system: AtomsGeometry,
-  cutoff: number,
-  group: ArrayLike<number>,
-  G: number,
-  limits: Float64Array,
-  distance: Float64Array,
-  bi: Int32Array,
-  bj: Int32Array,
-  record: (i: number, j: number, d: number) => void,
-  extra: PairVisitor | null,
-): CloseList {
+function closePass(system: AtomsGeometry, cutoff: number, m: GroupMinima, record: (i: number, j: number, d: number) => void, extra: PairVisitor | null): CloseList {
+  const { group, G, limits } = m;
   if (extra === null) {
     const { n, plan } = planFor(system, cutoff, undefined, true);
-    const fast = kernelClosePairs(system.positions, n, plan, cutoff, group, G, limits, distance, bi, bj);
+    const fast = kernelClosePairs(system.positions, n, plan, cutoff, m);
     if (fast !== null) return fast;
   }
   let ci = new Int32Array(16), cj = new Int32Array(16), cd = new Float64Array(16);

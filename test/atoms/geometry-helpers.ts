@@ -1,4 +1,5 @@
 /** Test helpers for the geometry tests: a seeded random generator and an independent brute-force pair search. */
+import { expect } from 'vitest';
 import type { Pbc } from '../../src/atoms/frame.js';
 
 /** mulberry32: small deterministic PRNG (common practice for reproducible tests). */
@@ -11,6 +12,27 @@ export function rng(seed: number): () => number {
     t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
     return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
   };
+}
+
+/**
+ * Random atoms (invented test data): fractional coordinates uniform in [-margin, 1 + margin) of the cell, so some lie
+ * outside it and wrapping is exercised; without a cell, Cartesian coordinates in the same fractions of a `box` Å cube.
+ */
+export function randomSystem(
+  seed: number,
+  n: number,
+  cell: Float64Array | null,
+  pbc: Pbc,
+  { margin = 0.1, box = 12 }: { margin?: number; box?: number } = {},
+): { positions: Float64Array; cell: Float64Array | null; pbc: Pbc } {
+  const r = rng(seed);
+  const positions = new Float64Array(3 * n);
+  const span = 1 + 2 * margin;
+  for (let a = 0; a < n; a++) {
+    const f = [r() * span - margin, r() * span - margin, r() * span - margin];
+    for (let k = 0; k < 3; k++) positions[3 * a + k] = cell ? f[0] * cell[k] + f[1] * cell[3 + k] + f[2] * cell[6 + k] : box * f[k];
+  }
+  return { positions, cell, pbc };
 }
 
 export interface BrutePair {
@@ -73,4 +95,17 @@ export function bruteForcePairs(positions: Float64Array, cell: Float64Array | nu
 /** Sort pairs by (i, j, d) for multiset comparison. */
 export function sortPairs<T extends { i: number; j: number; d: number }>(pairs: T[]): T[] {
   return pairs.sort((p, q) => p.i - q.i || p.j - q.j || p.d - q.d);
+}
+
+/** Same multiset of (i, j) pairs as brute force over lattice images, distances equal to 1e-12 Å (sorts `got`). */
+export function expectBrute(sys: { positions: Float64Array; cell: Float64Array | null; pbc: Pbc }, cutoff: number, got: { i: number; j: number; d: number }[]): void {
+  const want = bruteForcePairs(sys.positions, sys.cell, sys.pbc, cutoff);
+  const order = (a: { i: number; j: number; d: number }, b: { i: number; j: number; d: number }) => a.i - b.i || a.j - b.j || a.d - b.d;
+  got.sort(order);
+  want.sort(order);
+  expect(got.length).toBe(want.length);
+  got.forEach((p, k) => {
+    expect([p.i, p.j]).toEqual([want[k].i, want[k].j]);
+    expect(Math.abs(p.d - want[k].d)).toBeLessThan(1e-12);
+  });
 }

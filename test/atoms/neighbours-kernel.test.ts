@@ -10,7 +10,7 @@ import type { Pbc } from '../../src/atoms/frame.js';
 import { forEachPair, minimumDistance, minimumDistanceByGroup, type AtomsGeometry } from '../../src/atoms/neighbours.js';
 import { neighbourKernelStats } from '../../src/atoms/neighbours-kernel.js';
 import { loadKernel, setKernels } from '../../src/atoms/wasm.js';
-import { bruteForcePairs, rng } from './geometry-helpers.js';
+import { expectBrute, randomSystem, rng } from './geometry-helpers.js';
 
 afterEach(() => {
   setKernels(true);
@@ -29,16 +29,8 @@ function rows(sys: AtomsGeometry, cutoff: number, kernel: boolean): Row[] {
   return out;
 }
 
-function system(seed: number, n: number, cell: Float64Array | null, pbc: Pbc): AtomsGeometry {
-  const r = rng(seed);
-  const positions = new Float64Array(3 * n);
-  for (let a = 0; a < n; a++) {
-    // fractional coordinates partly outside [0, 1): wrapping is exercised
-    const f = [r() * 1.4 - 0.2, r() * 1.4 - 0.2, r() * 1.4 - 0.2];
-    for (let k = 0; k < 3; k++) positions[3 * a + k] = cell ? f[0] * cell[k] + f[1] * cell[3 + k] + f[2] * cell[6 + k] : 15 * f[k];
-  }
-  return { positions, cell, pbc };
-}
+/** Fractional coordinates from -0.2 to 1.2 (wrapping exercised); 15 Å box without a cell. */
+const system = (seed: number, n: number, cell: Float64Array | null, pbc: Pbc): AtomsGeometry => randomSystem(seed, n, cell, pbc, { margin: 0.2, box: 15 });
 
 const PBCS: Pbc[] = [
   [true, true, true],
@@ -91,16 +83,7 @@ describe('the WebAssembly neighbour search', () => {
   it('agrees with brute force over lattice images in a 30-degree cell', () => {
     const cell = cellFromParameters(7, 8, 9, 30, 35, 40);
     const sys = system(7, 60, cell, [true, true, true]);
-    const got = rows(sys, 4.5, true).map(([i, j, d]) => ({ i, j, d }));
-    const want = bruteForcePairs(sys.positions, sys.cell, sys.pbc, 4.5);
-    const order = (p: { i: number; j: number; d: number }, q: { i: number; j: number; d: number }) => p.i - q.i || p.j - q.j || p.d - q.d;
-    got.sort(order);
-    want.sort(order);
-    expect(got.length).toBe(want.length);
-    got.forEach((p, k) => {
-      expect([p.i, p.j]).toEqual([want[k].i, want[k].j]);
-      expect(Math.abs(p.d - want[k].d)).toBeLessThan(1e-12);
-    });
+    expectBrute(sys, 4.5, rows(sys, 4.5, true).map(([i, j, d]) => ({ i, j, d })));
   });
 
   it('lets a visitor start another search (that one runs in TypeScript) and recovers after a visitor throws', () => {

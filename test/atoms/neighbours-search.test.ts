@@ -7,7 +7,7 @@ import { describe, expect, it } from 'vitest';
 import { cellFromParameters } from '../../src/atoms/cell.js';
 import type { Pbc } from '../../src/atoms/frame.js';
 import { forEachPair, minimumDistanceByGroup, speciesGroups, type AtomsGeometry } from '../../src/atoms/neighbours.js';
-import { bruteForcePairs, rng } from './geometry-helpers.js';
+import { expectBrute, randomSystem } from './geometry-helpers.js';
 
 type Pair = { i: number; j: number; d: number };
 const key = (p: Pair) => `${p.i} ${p.j} ${p.d}`;
@@ -16,29 +16,6 @@ function pairsOf(sys: AtomsGeometry, cutoff: number): Pair[] {
   const out: Pair[] = [];
   forEachPair(sys, cutoff, (i, j, d) => out.push({ i, j, d }));
   return out;
-}
-
-function randomSystem(seed: number, n: number, cell: Float64Array | null, pbc: Pbc): AtomsGeometry {
-  const r = rng(seed);
-  const positions = new Float64Array(3 * n);
-  for (let a = 0; a < n; a++) {
-    const f = [r() * 1.2 - 0.1, r() * 1.2 - 0.1, r() * 1.2 - 0.1];
-    for (let k = 0; k < 3; k++) positions[3 * a + k] = cell ? f[0] * cell[k] + f[1] * cell[3 + k] + f[2] * cell[6 + k] : 12 * f[k];
-  }
-  return { positions, cell, pbc };
-}
-
-/** Same multiset of (i, j) pairs as brute force, distances equal to 1e-12 Å. */
-function expectBrute(sys: AtomsGeometry, cutoff: number, got: Pair[]): void {
-  const want = bruteForcePairs(sys.positions, sys.cell, sys.pbc, cutoff);
-  const order = (a: Pair, b: Pair) => a.i - b.i || a.j - b.j || a.d - b.d;
-  got.sort(order);
-  want.sort(order);
-  expect(got.length).toBe(want.length);
-  got.forEach((p, k) => {
-    expect([p.i, p.j]).toEqual([want[k].i, want[k].j]);
-    expect(Math.abs(p.d - want[k].d)).toBeLessThan(1e-12);
-  });
 }
 
 describe('neighbour search reuse between calls', () => {
