@@ -14,7 +14,7 @@
  *
  * RATCHET_KERNELS=off in the environment (or setKernels(false) in src/atoms/wasm.ts) uses the TypeScript parser only.
  */
-import type { AtomColumn } from '../frame.js';
+import type { AtomBlock } from './atoms.js';
 import { ensureMemory, kernelsEnabled, loadKernel, type WasmGlobal, type WasmMemory } from '../wasm.js';
 import type { Layout } from './properties.js';
 
@@ -61,14 +61,6 @@ function load(): Kernel | null {
     kernel = 'error' in k ? null : { x: k.exports, heap: (k.exports.heapBase() + 15) & ~15, table: k.exports.speciesTable(), u8: new Uint8Array(k.exports.memory.buffer) };
   }
   return kernel;
-}
-
-export interface FastBlock {
-  species: string[];
-  positions: Float64Array;
-  arrays: Map<string, AtomColumn>;
-  z: Float64Array | null;
-  end: number;
 }
 
 interface Op {
@@ -148,7 +140,7 @@ export function parseAtomsFast(
   layout: Layout,
   wanted: Set<string> | null,
   parsePositions: boolean,
-): FastBlock | null {
+): AtomBlock | null {
   if (!kernelsEnabled() || end - start > MAX_TEXT || natoms <= 0) return null;
   const k = load();
   if (k === null) return null;
@@ -186,7 +178,7 @@ export function parseAtomsFast(
 
   // (positions are zeros when asked for but absent, as in atoms.ts)
   const positions = new Float64Array(parsePositions && layout.pos < 0 ? 3 * natoms : 0);
-  const block: FastBlock = { species: new Array(natoms), positions, arrays: new Map(), z: null, end: start + (k.x.endOffset.value - textAt) };
+  const block: AtomBlock = { species: new Array(natoms), positions, arrays: new Map(), z: null, end: start + (k.x.endOffset.value - textAt) };
   for (let o = 0; o < ops.length; o++) {
     const op = ops[o];
     if (op.kind === SPECIES) {
