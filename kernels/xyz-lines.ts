@@ -37,8 +37,6 @@ const TABLE: usize = memory.data(16 * 256, 16);
 /** Outputs of the last parse. */
 export let endOffset: usize = 0;
 export let speciesCount: i32 = 0;
-/** The atom where the fast path gave up (-1 when it did not). */
-export let stoppedAt: i32 = -1;
 
 /** First offset the caller may use for its own data (after this module's static data). */
 export function heapBase(): usize {
@@ -75,15 +73,14 @@ const TWO53: u64 = 9007199254740992;
   return v & 0xffffffff;
 }
 
-/** Parse `natoms` lines; 1 when all are in the fast path, else 0 (stoppedAt says where). */
+/** Parse `natoms` lines; 1 when all are in the fast path, else 0 (the TypeScript parser reads the frame then). */
 export function parseLines(text: usize, limit: usize, natoms: i32, ops: usize, nops: i32, rest: i32, speciesOut: usize): i32 {
   let p = text;
   speciesCount = 0;
-  stoppedAt = -1;
   const NL = i8x16.splat(10);
   const SP = i8x16.splat(32);
   for (let a: i32 = 0; a < natoms; a++) {
-    if (p >= limit) return stop(a);
+    if (p >= limit) return 0;
     for (let o: i32 = 0; o < nops; o++) {
       const op = ops + <usize>o * 12;
       const kind = load<i32>(op);
@@ -99,7 +96,7 @@ export function parseLines(text: usize, limit: usize, natoms: i32, ops: usize, n
         p += <usize>(ctz(sp) >> 3);
         let c = <u32>load<u8>(p);
         while (c <= 32 && c != 10) c = <u32>load<u8>(++p);
-        if (c == 10) return stop(a); // too few columns
+        if (c == 10) return 0; // too few columns
         if (kind == REAL) {
           const neg = c == 45;
           if (neg || c == 43) c = <u32>load<u8>(++p);
@@ -142,7 +139,7 @@ export function parseLines(text: usize, limit: usize, natoms: i32, ops: usize, n
               c = <u32>load<u8>(++p);
             }
           }
-          if (digits == 0) return stop(a);
+          if (digits == 0) return 0;
           if ((c | 32) == 101 || (c | 32) == 100) {
             c = <u32>load<u8>(++p);
             const eneg = c == 45;
@@ -154,13 +151,13 @@ export function parseLines(text: usize, limit: usize, natoms: i32, ops: usize, n
               ed++;
               c = <u32>load<u8>(++p);
             }
-            if (ed == 0) return stop(a);
+            if (ed == 0) return 0;
             e10 += eneg ? -e : e;
           }
-          if (c > 32) return stop(a);
+          if (c > 32) return 0;
           let v: f64 = 0;
           if (nd > 0) {
-            if (nd > 16 || m >= TWO53 || e10 > 22 || e10 < -22) return stop(a);
+            if (nd > 16 || m >= TWO53 || e10 > 22 || e10 < -22) return 0;
             v = e10 < 0 ? <f64>m / unchecked(POW10[-e10]) : <f64>m * unchecked(POW10[e10]);
           }
           store<f64>(dest + (<usize>k << 3), neg ? -v : v);
@@ -178,14 +175,14 @@ export function parseLines(text: usize, limit: usize, natoms: i32, ops: usize, n
             digits++;
             c = <u32>load<u8>(++p);
           }
-          if (digits == 0 || c > 32 || nd > 16 || m >= TWO53) return stop(a);
+          if (digits == 0 || c > 32 || nd > 16 || m >= TWO53) return 0;
           const v = <f64>m;
           store<f64>(dest + (<usize>k << 3), neg ? -v : v);
         } else if (kind == SPECIES) {
           const s = p;
           while (c > 32) c = <u32>load<u8>(++p);
           const id = speciesId(s, <i32>(p - s));
-          if (id < 0) return stop(a);
+          if (id < 0) return 0;
           store<u8>(speciesOut + <usize>a, <u8>id);
         } else {
           while (c > 32) c = <u32>load<u8>(++p);
@@ -211,17 +208,12 @@ export function parseLines(text: usize, limit: usize, natoms: i32, ops: usize, n
       carry = (tm >> 15) & 1;
       p += 16;
     }
-    if (p >= limit) return stop(a); // the sentinel: the text ended inside this line
-    if (rest >= 0 && n != rest) return stop(a);
+    if (p >= limit) return 0; // the sentinel: the text ended inside this line
+    if (rest >= 0 && n != rest) return 0;
     p++;
   }
   endOffset = p;
   return 1;
-}
-
-function stop(a: i32): i32 {
-  stoppedAt = a;
-  return 0;
 }
 
 /** The id of the species token [s, s + len) in this frame's table (added when new), or -1 (too long, too many). */

@@ -34,7 +34,6 @@ interface Exports {
   speciesTable(): number;
   endOffset: WasmGlobal;
   speciesCount: WasmGlobal;
-  stoppedAt: WasmGlobal;
 }
 
 interface Kernel {
@@ -83,15 +82,18 @@ interface Program {
   rest: number;
 }
 
-/** Programs per layout (layouts are cached by their Properties text), columns wanted and positions flag. */
-const programs = new WeakMap<Layout, Map<Set<string> | null, (Program | null)[]>>();
+/**
+ * Programs per layout (layouts are cached by their Properties text) and columns wanted: weakly keyed on both, since
+ * every reading of a file makes its own `wanted` set. Index 1 with positions parsed, 0 without.
+ */
+const programs = new WeakMap<Layout, { all: (Program | null)[]; some: WeakMap<Set<string>, (Program | null)[]> }>();
 
 /** The line program (as atoms.ts builds it), or null when the layout needs the TypeScript parser. */
 function programFor(layout: Layout, wanted: Set<string> | null, parsePositions: boolean): Program | null {
-  let byWanted = programs.get(layout);
-  if (byWanted === undefined) programs.set(layout, (byWanted = new Map()));
-  let pair = byWanted.get(wanted);
-  if (pair === undefined) byWanted.set(wanted, (pair = []));
+  let byLayout = programs.get(layout);
+  if (byLayout === undefined) programs.set(layout, (byLayout = { all: [], some: new WeakMap() }));
+  let pair = wanted === null ? byLayout.all : byLayout.some.get(wanted);
+  if (pair === undefined) byLayout.some.set(wanted!, (pair = []));
   const slot = parsePositions ? 1 : 0;
   let prog = pair[slot];
   if (prog === undefined) pair[slot] = prog = makeProgram(layout, wanted, parsePositions);
