@@ -61,6 +61,21 @@ export const AMU_A2_PER_FS2_TO_EV = (AMU_KG * (A_M / FS_S) ** 2) / EV_J;
 /** Inverse: 1 eV expressed in u Å^2/fs^2. A force in eV/Å divided by a mass in u, times this, is Å/fs^2. */
 export const EV_TO_AMU_A2_PER_FS2 = 1 / AMU_A2_PER_FS2_TO_EV;
 
+/**
+ * ASE's unit of time, Å·sqrt(u/eV), in fs: 1e5 · sqrt(u [kg] / eV [J]) = 10.1805 fs (derived from CODATA 2018).
+ * ASE stores momenta in u·Å per this unit; velocity in Å/fs = momentum / mass / ASE_TIME_UNIT_FS.
+ */
+export const ASE_TIME_UNIT_FS = (A_M * Math.sqrt(AMU_KG / EV_J)) / FS_S;
+
+/** Velocities [Å/fs] from ASE momenta [u·Å per ASE time unit] and masses [u] (3 momentum components per mass). */
+export function momentaToVelocities(masses: ArrayLike<number>, momenta: ArrayLike<number>): Float64Array {
+  const n = masses.length;
+  if (momenta.length !== 3 * n) throw new Error(`momentaToVelocities: expected ${3 * n} momentum components for ${n} masses, found ${momenta.length}`);
+  const v = new Float64Array(3 * n);
+  for (let a = 0; a < n; a++) for (let c = 0; c < 3; c++) v[3 * a + c] = momenta[3 * a + c] / masses[a] / ASE_TIME_UNIT_FS;
+  return v;
+}
+
 // ---- conversions ----
 export const evToMeV = (ev: number): number => ev * MEV_PER_EV;
 export const meVToEv = (mev: number): number => mev / MEV_PER_EV;

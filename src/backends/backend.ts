@@ -67,6 +67,11 @@ export interface TaskStatus {
   exit?: ExitRecord;
   /** Plain-words reason for a non-success state (e.g. "exceeded walltime 00:10:00"). */
   reason?: string;
+  /**
+   * State 'cancelled' by someone other than this backend: the scheduler's cancel command (scancel, qdel,
+   * bkill) or a signal to a local task. A person's decision: the engine holds the task, never resubmits it.
+   */
+  outside?: boolean;
 }
 
 export interface Submission {
@@ -80,6 +85,12 @@ export interface Submission {
   dir?: string;
   /** Set when the job was found already queued or running (submitted by a run that crashed before recording it), not submitted now. */
   adopted?: boolean;
+  /**
+   * The caller never saw the job running (it was queued at every look so far). A job that then leaves
+   * the queue with no exit record and no trace in the scheduler's history was cancelled while it waited
+   * (Slurm without accounting and Grid Engine keep no record of a waiting job that was cancelled).
+   */
+  neverStarted?: boolean;
 }
 
 export interface Backend {

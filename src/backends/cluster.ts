@@ -17,6 +17,8 @@
  *  3. A job the scheduler no longer lists: its history (sacct, the job completion file, qacct ...)
  *     where the dialect has one; else the exit record's code; else `lost` (or `cancelled` when this
  *     process cancelled it).
+ *  A cancel this process did not make (a person's scancel, qdel, bkill) is reported `outside`: the
+ *  engine holds such a task instead of resubmitting it.
  */
 import { existsSync, readFileSync } from 'node:fs';
 import { userInfo } from 'node:os';
@@ -156,6 +158,8 @@ export class ClusterBackend implements Backend {
   /** Recorded job id -> task folder (for poll/cancel calls that carry no dir). */
   private readonly dirs = new Map<string, string>();
   private readonly cancelled = new Set<string>();
+  /** The last state seen for each job asked about (to tell a job cancelled while it waited from a lost one). */
+  private readonly lastSeen = new Map<string, TaskState>();
   /** When a job was first found missing from both the queue and the history (for the grace before `lost`). */
   private readonly missingSince = new Map<string, number>();
   private cache?: { at: number; ids: Set<string>; jobs: Map<string, SchedJob> };
@@ -352,7 +356,7 @@ export class ClusterBackend implements Backend {
         return { ...base, state: 'running', exit: rec, reason: `exit record written (${describeExitCode(rec.exit_code)}); waiting for the scheduler's final state` };
       }
       if (m.state === 'succeeded' || m.state === 'failed') return this.byExitCode(s, dir, rec);
-      return { ...base, state: m.state, exit: rec, reason: `${m.reason ?? m.state} (${describeExitCode(rec.exit_code)})` };
+      return { ...base, state: m.state, exit: rec, reason: `${m.reason ?? m.state} (${describeExitCode(rec.exit_code)})`, ...this.outside(s, m) };
     }
     if (!m.final) return { ...base, state: m.state, ...(m.reason ? { reason: m.reason } : {}) };
     if (m.state === 'succeeded' || m.state === 'failed') {
@@ -365,7 +369,15 @@ export class ClusterBackend implements Backend {
       const tail = await tailLines(join(dir, STDERR_FILE), 20);
       return { ...base, state: 'failed', reason: `${m.reason ?? job.state}; no exit record: the batch script may not have started (see the scheduler's output file in ${dir})${tail ? `; last lines of stderr.log:\n${tail}` : ''}` };
     }
-    return { ...base, state: m.state, ...(m.reason ? { reason: m.reason } : {}) };
+    return { ...base, state: m.state, ...(m.reason ? { reason: m.reason } : {}), ...this.outside(s, m) };
+  }
+
+  /**
+   * A cancel this process did not make: a person's scancel/qdel/bkill (ratchet's own cancels, by this
+   * process, are remembered; those of `ratchet stop` are held before they are seen).
+   */
+  private outside(s: Submission, m: Mapped): { outside?: true } {
+    return m.state === 'cancelled' && !this.cancelled.has(s.job_id) ? { outside: true } : {};
   }
 
   private async byExitCode(s: Submission, dir: string, rec: ExitRecord, note?: string): Promise<TaskStatus> {
@@ -387,13 +399,25 @@ export class ClusterBackend implements Backend {
   private async gone(s: Submission, dir: string, rec: ExitRecord | undefined): Promise<TaskStatus> {
     if (rec) return this.byExitCode(s, dir, rec, 'the scheduler no longer knows the job');
     if (this.cancelled.has(s.job_id)) return { id: s.id, job_id: s.job_id, state: 'cancelled', reason: 'cancelled by ratchet before it wrote an exit record' };
+    const last = this.lastSeen.get(s.job_id);
+    const waited = last !== undefined ? last === 'queued' : s.neverStarted === true;
     // The exit record (shared file system) or the accounting record (Grid Engine flushes it after the
     // job leaves the queue) may show up late: wait the grace before calling the job lost.
     const now = this.now();
     const since = this.missingSince.get(s.job_id) ?? now;
     this.missingSince.set(s.job_id, since);
     if (now - since < this.graceMs) {
-      return { id: s.id, job_id: s.job_id, state: 'running', reason: `the scheduler no longer lists job ${s.job_id}; waiting for its exit record or accounting record` };
+      // A job never seen running stays 'queued' meanwhile (reporting it running would record a start).
+      return { id: s.id, job_id: s.job_id, state: waited ? 'queued' : 'running', reason: `the scheduler no longer lists job ${s.job_id}; waiting for its exit record or accounting record` };
+    }
+    if (waited) {
+      return {
+        id: s.id,
+        job_id: s.job_id,
+        state: 'cancelled',
+        outside: true,
+        reason: `job ${s.job_id} left the queue before it started and the scheduler keeps no record of it (a cancel while it waited)`,
+      };
     }
     return { id: s.id, job_id: s.job_id, state: 'lost', reason: `the scheduler does not know job ${s.job_id} and the task wrote no exit record` };
   }
@@ -416,6 +440,10 @@ export class ClusterBackend implements Backend {
     }
     const jobs = new Map<string, SchedJob>();
     for (const j of parsed) jobs.set(j.id, j);
+    for (const id of ids) {
+      const j = jobs.get(id);
+      if (j) this.lastSeen.set(id, this.dialect.map(j).state);
+    }
     let changed = !c;
     if (c) {
       for (const id of ids) {

@@ -4,7 +4,7 @@
  * Syntax follows each scheduler's manual (sources beside each function). Values that reach a directive
  * line (partition/queue, account, qos) are checked against a conservative character set, because a
  * directive line is parsed by the scheduler, not by bash, and cannot be quoted portably.
- * Raw `extra_directives` from the campaign are copied as written; a line without a leading '#' gets
+ * Raw `scheduler_lines` from the campaign are copied as written; a line without a leading '#' gets
  * the scheduler's prefix (so "--constraint=v100" becomes "#SBATCH --constraint=v100").
  */
 import type { Resources } from './backend.js';
@@ -88,7 +88,7 @@ export function slurmTime(seconds: number): string {
 /** The campaign's raw extra directives, each given the scheduler's prefix when it has no leading '#'. */
 export function extraLines(scheduler: SchedulerName, extra: string[] | undefined): string[] {
   return (extra ?? []).map((line, i) => {
-    if (/[\r\n\0]/.test(line)) throw new DirectiveError(`resources.extra_directives[${i}]`, `expected one line, found ${JSON.stringify(line)}`);
+    if (/[\r\n\0]/.test(line)) throw new DirectiveError(`resources.scheduler_lines[${i}]`, `expected one line, found ${JSON.stringify(line)}`);
     const t = line.trim();
     return t.startsWith('#') ? t : `${DIRECTIVE_PREFIX[scheduler]} ${t}`;
   });
@@ -131,7 +131,7 @@ export function slurmDirectives(r: Resources, name: string, array?: ArrayRequest
  */
 export function pbsDirectives(r: Resources, name: string, array?: ArrayRequest): string[] {
   checkCommon(r, name, array);
-  if (r.qos !== undefined) throw new DirectiveError('resources.qos', 'PBS has no quality-of-service option: remove qos, or write the site\'s own directive in extra_directives');
+  if (r.qos !== undefined) throw new DirectiveError('resources.qos', 'PBS has no quality-of-service option: remove qos, or write the site\'s own directive in scheduler_lines');
   const p = DIRECTIVE_PREFIX.pbs;
   let select = `select=1:ncpus=${r.cpus}`;
   if (r.memory_mb !== undefined) select += `:mem=${Math.ceil(r.memory_mb)}mb`;
@@ -156,7 +156,7 @@ export function pbsDirectives(r: Resources, name: string, array?: ArrayRequest):
  */
 export function lsfDirectives(r: Resources, name: string, array?: ArrayRequest): string[] {
   checkCommon(r, name, array);
-  if (r.qos !== undefined) throw new DirectiveError('resources.qos', 'LSF has no quality-of-service option: remove qos, or write the site\'s own directive in extra_directives');
+  if (r.qos !== undefined) throw new DirectiveError('resources.qos', 'LSF has no quality-of-service option: remove qos, or write the site\'s own directive in scheduler_lines');
   const p = DIRECTIVE_PREFIX.lsf;
   const out: string[] = [];
   if (array) out.push(`${p} -J "${name}[1-${array.count}]${array.throttle ? `%${array.throttle}` : ''}"`);
@@ -186,8 +186,8 @@ export function lsfDirectives(r: Resources, name: string, array?: ArrayRequest):
  */
 export function sgeDirectives(r: Resources, name: string, array?: ArrayRequest, pe = 'smp'): string[] {
   checkCommon(r, name, array);
-  if (r.qos !== undefined) throw new DirectiveError('resources.qos', 'Grid Engine has no quality-of-service option: remove qos, or write the site\'s own directive in extra_directives');
-  if (r.gpus > 0) throw new DirectiveError('resources.gpus', 'Grid Engine has no standard GPU request: set gpus to 0 and write the site\'s own request in extra_directives (for example "-l gpu=1")');
+  if (r.qos !== undefined) throw new DirectiveError('resources.qos', 'Grid Engine has no quality-of-service option: remove qos, or write the site\'s own directive in scheduler_lines');
+  if (r.gpus > 0) throw new DirectiveError('resources.gpus', 'Grid Engine has no standard GPU request: set gpus to 0 and write the site\'s own request in scheduler_lines (for example "-l gpu=1")');
   const p = DIRECTIVE_PREFIX.sge;
   const extra = extraLines('sge', r.extra);
   const out = [`${p} -N ${name}`, `${p} -S /bin/bash`, `${p} -cwd`, `${p} -j y`, `${p} -r n`, `${p} -l h_rt=${hhmmss(r.walltime_s)}`];

@@ -294,13 +294,14 @@ export class LocalBackend implements Backend {
 }
 
 /** State and plain-words reason from an exit record (and what this process knows about the job). */
-async function classifyExit(r: ExitRecord, dir: string, job: LocalJob | undefined): Promise<{ state: TaskState; reason?: string }> {
+async function classifyExit(r: ExitRecord, dir: string, job: LocalJob | undefined): Promise<{ state: TaskState; reason?: string; outside?: boolean }> {
   const code = r.exit_code;
   if (code === 0) return { state: 'succeeded' };
   if (job?.walltimeHit) return { state: 'walltime', reason: `exceeded walltime ${hms(job.task.resources.walltime_s)} (exit ${code})` };
   if (job?.cancelled) return { state: 'cancelled', reason: `cancelled (exit ${code})` };
   if (code === 143 || code === 130 || code === 129) {
-    return { state: 'cancelled', reason: `stopped by ${SIGNAL_NAMES.get(code - 128)} (exit ${code}) before it finished` };
+    // Not a cancel of this process: someone signalled the task (ratchet stop, or a person's kill).
+    return { state: 'cancelled', reason: `stopped by ${SIGNAL_NAMES.get(code - 128)} (exit ${code}) before it finished`, outside: true };
   }
   let what = `exit code ${code}`;
   if (code === 127) what += ' (command not found)';

@@ -146,7 +146,18 @@ function readTemplate(name: string, overrideDir: string | undefined): [string, s
   const candidates = overrideDir === undefined ? [BUILTIN_TEMPLATES_DIR] : [overrideDir, BUILTIN_TEMPLATES_DIR];
   for (const dir of candidates) {
     const file = join(dir, name);
-    if (existsSync(file)) return [readFileSync(file, 'utf8'), file];
+    if (existsSync(file)) {
+      const bytes = readFileSync(file);
+      let text: string;
+      try {
+        text = new TextDecoder('utf-8', { fatal: true }).decode(bytes);
+      } catch {
+        throw new TemplateError(file, undefined, 'expected a text template (UTF-8), found binary data');
+      }
+      const nul = text.indexOf('\0');
+      if (nul >= 0) throw new TemplateError(file, lineOf(text, nul), 'expected a text template, found a NUL byte');
+      return [text, file];
+    }
   }
   throw new TemplateError(join(BUILTIN_TEMPLATES_DIR, name), undefined, `no template ${name} (is the backend name right?)`);
 }

@@ -13,8 +13,11 @@ import { isAlias, isMap, isScalar, isSeq, LineCounter, parseDocument, type Docum
 import type { z } from 'zod';
 import { isElement } from '../atoms/elements.js';
 import { readFrames, XyzError } from '../atoms/xyz/reader.js';
+import { structureIssue } from '../atoms/sanity.js';
+import { clearTemplateCache, loadTemplates, TemplateError } from '../backends/templates.js';
+import { contactsFrame } from '../gates/contacts.js';
 import { campaignJsonSchema, keyIndex, keysAt, type JsonSchema } from './jsonschema.js';
-import { CampaignSchema, type Campaign, type Condition } from './schema.js';
+import { CampaignSchema, RENAMED_KEYS, type Campaign, type Condition } from './schema.js';
 import { nearest } from './suggest.js';
 
 export type KeyPath = readonly (string | number)[];
@@ -95,9 +98,18 @@ export async function loadCampaign(path: string, opts: LoadOptions = {}): Promis
   } catch {
     throw new CampaignError([{ file: path, line: 1, column: 1, keyPath: '', detail: 'expected a UTF-8 text file' }]);
   }
-  const campaign = parseCampaignText(text, path);
   const file = resolve(path);
   const dir = dirname(file);
+  let campaign: ReturnType<typeof parseCampaignText>;
+  try {
+    campaign = parseCampaignText(text, path);
+  } catch (err) {
+    if (!(err instanceof SchemaProblems) || opts.checkFiles === false) throw err;
+    const more = await rawStartProblems(err, dir, path);
+    if (more.length === 0) throw err;
+    const all = [...err.problems, ...more].sort((a, b) => (a.line ?? 0) - (b.line ?? 0) || (a.column ?? 0) - (b.column ?? 0));
+    throw new CampaignError(all.slice(0, MAX_PROBLEMS));
+  }
   if (opts.checkFiles !== false) await checkFiles(campaign.campaign, campaign.startIsList, campaign.locate, dir, path);
   return { campaign: campaign.campaign, dir, file, sha256 };
 }
@@ -128,7 +140,18 @@ export function parseCampaignText(text: string, file: string): { campaign: Campa
     );
   }
   const locate: Locate = (path, at) => locateIn(doc, path, at, pos);
-  const data: unknown = doc.toJS({ maxAliasCount: 1000 });
+  let data: unknown;
+  try {
+    data = doc.toJS({ maxAliasCount: 1000 });
+  } catch (err) {
+    // The yaml library refuses documents whose aliases expand without bound ("billion laughs").
+    if (/alias/i.test((err as Error).message)) {
+      throw new CampaignError([
+        { file, line: 1, column: 1, keyPath: '', detail: 'expected a campaign file, found YAML whose aliases (*name) expand to too much data (over 1000 expansions); write the values out or use fewer aliases' },
+      ]);
+    }
+    throw err;
+  }
   if (data === null || typeof data !== 'object' || Array.isArray(data)) {
     throw new CampaignError([
       { file, ...(doc.contents ? pos(doc.contents.range[0]) : { line: 1, column: 1 }), keyPath: '', detail: `expected a mapping of campaign settings (key: value lines), found ${describe(data, true)}` },
@@ -137,7 +160,38 @@ export function parseCampaignText(text: string, file: string): { campaign: Campa
   emptySectionsAsMappings(data as Record<string, unknown>, campaignJsonSchema(), []);
   const result = CampaignSchema.safeParse(data);
   if (result.success) return { campaign: result.data, locate, startIsList: Array.isArray((data as { start?: unknown }).start) };
-  throw new CampaignError(issuesToProblems(result.error.issues, data, file, locate));
+  throw new SchemaProblems(issuesToProblems(result.error.issues, data, file, locate), data as Record<string, unknown>, locate);
+}
+
+/** Schema problems, with what a loader needs to look for more (file problems) in the same pass. */
+class SchemaProblems extends CampaignError {
+  constructor(
+    problems: CampaignProblem[],
+    readonly data: Record<string, unknown>,
+    readonly locate: Locate,
+  ) {
+    super(problems);
+  }
+}
+
+/**
+ * The starting structures a campaign that failed its schema names (written as a path or a list of
+ * paths), so their problems come in the same report as the keys' (a key typo must not hide a missing file).
+ */
+async function rawStartProblems(e: SchemaProblems, dir: string, file: string): Promise<CampaignProblem[]> {
+  const start = e.data.start;
+  const list = typeof start === 'string' ? [start] : Array.isArray(start) ? start : [];
+  const out: CampaignProblem[] = [];
+  for (const [i, rel] of list.entries()) {
+    if (typeof rel !== 'string' || rel === '') continue;
+    const path: KeyPath = typeof start === 'string' ? ['start'] : ['start', i];
+    const keyPath = formatKeyPath(path);
+    if (e.problems.some((p) => p.keyPath === keyPath)) continue;
+    const abs = resolve(dir, rel);
+    const reason = await unreadable(abs, 'file');
+    if (reason) out.push({ file, ...e.locate(path, 'value'), keyPath, detail: `cannot read starting structure ${JSON.stringify(rel)}${abs === rel ? '' : ` (${abs})`}: ${reason}` });
+  }
+  return out;
 }
 
 /**
@@ -182,8 +236,10 @@ function issueToProblems(issue: z.core.$ZodIssue, data: unknown, file: string, l
     return issue.keys.map((key) => {
       const full = [...path, key];
       const near = nearest(key, valid);
+      const renamed = RENAMED_KEYS[key];
       let detail: string;
-      if (near) detail = `unknown key; did you mean '${near}'?`;
+      if (renamed !== undefined && valid.includes(renamed)) detail = `'${key}' was renamed: write '${renamed}' instead (same meaning)`;
+      else if (near) detail = `unknown key; did you mean '${near}'?`;
       else {
         const elsewhere = keyIndex(schema).get(key);
         detail = elsewhere
@@ -325,7 +381,7 @@ export function conditionStartPath(campaign: Campaign, dir: string, condition: C
 async function checkFiles(campaign: Campaign, startIsList: boolean, locate: Locate, dir: string, file: string): Promise<void> {
   const problems: CampaignProblem[] = [];
   const checked = new Set<string>();
-  const check = async (path: KeyPath, rel: string, what: string, kind: 'file' | 'dir') => {
+  const check = async (path: KeyPath, rel: string, what: string, kind: 'file' | 'dir' | 'any') => {
     const abs = resolve(dir, rel);
     const at = () => ({ file, ...locate(path, 'value'), keyPath: formatKeyPath(path) });
     const reason = await unreadable(abs, kind);
@@ -336,7 +392,7 @@ async function checkFiles(campaign: Campaign, startIsList: boolean, locate: Loca
     }
     if (kind === 'file' && !checked.has(abs)) {
       checked.add(abs);
-      const detail = await structureProblem(abs, rel, campaign.species);
+      const detail = await structureProblem(abs, rel, campaign);
       if (detail) problems.push({ ...at(), detail });
     }
   };
@@ -348,7 +404,24 @@ async function checkFiles(campaign: Campaign, startIsList: boolean, locate: Loca
   for (const [i, cond] of campaign.conditions.entries()) {
     if (typeof cond.start === 'string') await check(['conditions', i, 'start'], cond.start, 'starting structure', 'file');
   }
-  if (campaign.backend.template_dir !== undefined) await check(['backend', 'template_dir'], campaign.backend.template_dir, 'template folder', 'dir');
+  if (campaign.backend.template_dir !== undefined) {
+    const before = problems.length;
+    await check(['backend', 'template_dir'], campaign.backend.template_dir, 'template folder', 'dir');
+    // The templates themselves, as a run would load them: placeholders, #! header, {{command}} in the body, text only.
+    if (problems.length === before) {
+      try {
+        clearTemplateCache();
+        loadTemplates(campaign.backend.kind, resolve(dir, campaign.backend.template_dir));
+      } catch (err) {
+        if (!(err instanceof TemplateError)) throw err;
+        problems.push({ file, ...locate(['backend', 'template_dir'], 'value'), keyPath: 'backend.template_dir', detail: `expected usable batch-script templates, but ${err.message}` });
+      }
+    }
+  }
+  // Programs a stage's command runs (a file or a folder each): hashed into the ledger when tasks start.
+  for (const [stage, st] of Object.entries(campaign.stages)) {
+    for (const [i, rel] of (st.programs ?? []).entries()) await check(['stages', stage, 'programs', i], rel, 'program', 'any');
+  }
   if (problems.length > 0) throw new CampaignError(problems);
 }
 
@@ -356,14 +429,34 @@ async function checkFiles(campaign: Campaign, startIsList: boolean, locate: Loca
  * What is wrong with a starting structure's content, if anything: it must be extended XYZ with at least
  * one frame, and hold only the campaign's species. Every frame is read (species and positions only).
  */
-async function structureProblem(abs: string, rel: string, species: readonly string[]): Promise<string | undefined> {
+async function structureProblem(abs: string, rel: string, campaign: Campaign): Promise<string | undefined> {
+  const species = campaign.species;
   const allowed = new Set(species);
+  const c = campaign.stages.simulate.contacts as { scale: number; min_distance: Record<string, number>; hydrogen_scale?: number };
   let index = 0;
   try {
     for await (const frame of readFrames(abs, { columns: [] })) {
       const stranger = frame.species.find((s) => !allowed.has(s));
       if (stranger !== undefined) {
         return `expected structures of the campaign's species (${species.join(', ')}), found "${stranger}" in frame ${index} of ${JSON.stringify(rel)}`;
+      }
+      const issue = structureIssue(frame);
+      if (issue) return `expected a structure that can be simulated, but frame ${index} of ${JSON.stringify(rel)}: ${issue}`;
+      // No pair closer than the contacts limit of the simulate stage (the strictest place a structure goes).
+      const con = contactsFrame(frame, index, {
+        scale: c.scale,
+        pairLimits: c.min_distance,
+        ...(c.hydrogen_scale !== undefined ? { hydrogenScale: c.hydrogen_scale } : {}),
+        maxPerFrame: 1,
+      });
+      if (con.missing) return `cannot check contacts in frame ${index} of ${JSON.stringify(rel)}: ${con.missing}`;
+      if (con.violationCount > 0) {
+        const v = con.violations[0];
+        return (
+          `expected no pair closer than the contacts limit (stages.simulate.contacts), but frame ${index} of ${JSON.stringify(rel)} has atoms ${v.i} and ${v.j} ` +
+          `(${v.species.join('-')}) ${v.distance.toFixed(4)} Å apart, below ${v.limit.toFixed(4)} Å` +
+          (con.violationCount > 1 ? ` (${con.violationCount} close pairs in all)` : '')
+        );
       }
       index++;
     }
@@ -374,7 +467,7 @@ async function structureProblem(abs: string, rel: string, species: readonly stri
   return index === 0 ? `expected at least one frame in starting structure ${JSON.stringify(rel)}, found an empty file` : undefined;
 }
 
-async function unreadable(abs: string, kind: 'file' | 'dir'): Promise<string | undefined> {
+async function unreadable(abs: string, kind: 'file' | 'dir' | 'any'): Promise<string | undefined> {
   try {
     const st = await stat(abs);
     if (kind === 'file' && !st.isFile()) return st.isDirectory() ? 'it is a directory, expected a file' : 'not a regular file';

@@ -13,6 +13,7 @@
 import { z } from 'zod';
 import { SYMBOLS } from '../atoms/elements.js';
 import { formatWalltime, parseMemory, parseWalltime } from './units.js';
+import { LIMITS, SAMPLE_LIMITS, resolveLimit, type LimitName } from '../gates/limits.js';
 
 /** The five stages of a round, in the order they run. */
 export const STAGES = ['sample', 'label', 'train', 'validate', 'simulate'] as const;
@@ -28,6 +29,13 @@ export type BackendKind = (typeof BACKEND_KINDS)[number];
 const int = (what: string) => z.number({ error: `expected ${what}` }).int({ error: `expected ${what}` });
 const num = (what: string) => z.number({ error: `expected ${what}` }).refine(Number.isFinite, { error: `expected ${what}` });
 const positiveInt = (what = 'a whole number of at least 1') => int(what).min(1, { error: `expected ${what}` });
+/**
+ * Counts that plan tasks or work get an upper bound, so a typo (an extra zero or ten) cannot plan millions
+ * of tasks or a run that never ends; the message says why. The bounds are far above any campaign in use.
+ */
+const bound = (what: string, max: number, why: string) => ({ error: `expected ${what} of at most ${max.toLocaleString('en-US')} (${why})` });
+const PLAN_GUARD = 'a guard against a typo planning more tasks than any campaign needs';
+const STEPS_GUARD = 'a guard against a typo asking for a run that would not end';
 const nonNegativeInt = (what = 'a whole number of at least 0') => int(what).min(0, { error: `expected ${what}` });
 const positive = (what: string) => num(what).gt(0, { error: `expected ${what}` });
 const nonNegative = (what: string) => num(what).min(0, { error: `expected ${what}` });
@@ -74,6 +82,7 @@ const SetupLines = z
     error: 'expected set-up lines: a list of strings or one block of text',
   })
   .transform((v) => (typeof v === 'string' ? v.replace(/\r\n/g, '\n').replace(/\n+$/, '').split('\n').filter((l, i, a) => l !== '' || a.length > 1) : v))
+  .refine((lines) => lines.every((l) => !l.includes('\0')), { error: 'expected set-up lines without NUL bytes (a shell cannot pass them)' })
   .meta({ description: 'Shell lines run before the command (module load ..., source a virtual environment).' });
 
 const PARAM_NAME = /^[A-Za-z_][A-Za-z0-9_]*$/;
@@ -97,12 +106,15 @@ export const StageResourcesSchema = z
     partition: text('a partition or queue name').optional().meta({ description: 'Partition (Slurm) or queue (PBS, LSF, Grid Engine).' }),
     account: text('an account name').optional(),
     qos: text('a quality-of-service name').optional(),
-    extra_directives: z
+    scheduler_lines: z
       .array(line('a scheduler directive line'), { error: 'expected a list of scheduler directive lines' })
       .default([])
       .meta({ description: 'Raw scheduler directive lines copied as written into the batch script header.' }),
   })
   .meta({ description: 'Resources of one task.' });
+
+/** Keys that were renamed: old name -> new name (the loader names the new one when it meets the old). */
+export const RENAMED_KEYS: Readonly<Record<string, string>> = { extra_directives: 'scheduler_lines' };
 
 /** Interatomic contact limits used by the contacts gate. */
 export const ContactsSchema = z
@@ -112,6 +124,11 @@ export const ContactsSchema = z
       .max(2, { error: 'expected a contact scale between 0 and 2 (times the sum of covalent radii)' })
       .default(0.5)
       .meta({ description: 'A pair closer than scale x (covalent radius A + covalent radius B) is a contact violation.' }),
+    hydrogen_scale: num('a contact scale for pairs with hydrogen between 0 and 2 (times the sum of covalent radii)')
+      .gt(0, { error: 'expected a contact scale for pairs with hydrogen between 0 and 2 (times the sum of covalent radii)' })
+      .max(2, { error: 'expected a contact scale for pairs with hydrogen between 0 and 2 (times the sum of covalent radii)' })
+      .default(0.7)
+      .meta({ description: 'Pairs with hydrogen use max(scale, hydrogen_scale) x (sum of covalent radii): H-H 0.434 Å, O-H 0.679 Å by default.' }),
     min_distance: z
       .record(
         z.string().regex(PAIR, { error: 'expected a species pair like "O-H"' }),
@@ -129,14 +146,26 @@ const stageCommon = {
     .default(2)
     .meta({ description: 'How many times a task may run in all, the first run included, before the stage is blocked.' }),
   params: Params.default({}),
+  programs: z
+    .array(text('a path to a program file or folder, relative to the campaign file'), {
+      error: 'expected a list of program files or folders (paths relative to the campaign file)',
+    })
+    .default([])
+    .meta({
+      description:
+        "Files and folders the stage's command runs (scripts, settings, basis sets), relative to the campaign file: hashed (sha256) into each task's record in the ledger and shown by `ratchet lineage`.",
+    }),
 };
 const command = (stage: string) =>
-  text(`a command line (a non-empty string) for the ${stage} tasks`).meta({ description: `Command line each ${stage} task runs (bash -c, in the task directory).` });
+  text(`a command line (a non-empty string) for the ${stage} tasks`)
+    .refine((s) => s.trim() !== '', { error: `expected a command line for the ${stage} tasks, found only blanks` })
+    .refine((s) => !s.includes('\0'), { error: `expected a command line for the ${stage} tasks without NUL bytes (a shell cannot pass them)` })
+    .meta({ description: `Command line each ${stage} task runs (bash -c, in the task directory).` });
 
 /** Round-0 perturbation of the starting structures. */
 export const PerturbSchema = z
   .strictObject({
-    count: positiveInt('a whole number of frames of at least 1')
+    count: positiveInt('a whole number of frames of at least 1').max(100_000, bound('a number of perturbed frames', 100_000, PLAN_GUARD))
       .default(10)
       .meta({ description: 'Perturbed frames made from each starting structure in round 0.' }),
     displacement: nonNegative('a displacement in Å of at least 0')
@@ -156,10 +185,13 @@ export const SelectSchema = z
       .strictObject({
         lower: nonNegative('a committee spread in eV/Å of at least 0').default(0.05).meta({ description: 'Frames with spread below this (eV/Å) are confident.' }),
         upper: positive('a committee spread in eV/Å above 0').default(0.5).meta({ description: 'Frames with spread at or above this (eV/Å) are runaway, never labeled.' }),
+        calibrate: z.boolean({ error: 'expected true or false' }).default(false).meta({
+          description: "Divide lower and upper by the latest measured ratio of true force error to spread (median, from at least 10 labeled frames), so the window holds for the true error.",
+        }),
       })
       .prefault({})
       .meta({ description: 'Spread window [lower, upper) in eV/Å: frames inside it are informative.' }),
-    max_per_condition: positiveInt('a whole number of frames of at least 1')
+    max_per_condition: positiveInt('a whole number of frames of at least 1').max(1_000_000, bound('a number of frames', 1_000_000, PLAN_GUARD))
       .default(50)
       .meta({ description: 'At most this many frames picked per condition per round.' }),
     fingerprint: z
@@ -185,7 +217,7 @@ export const LabelStageSchema = z
   .strictObject({
     command: command('label'),
     ...stageCommon,
-    frames_per_task: positiveInt('a whole number of frames of at least 1').default(20).meta({ description: 'Frames labeled by one task.' }),
+    frames_per_task: positiveInt('a whole number of frames of at least 1').max(1_000_000, bound('a number of frames per task', 1_000_000, PLAN_GUARD)).default(20).meta({ description: 'Frames labeled by one task.' }),
     max_force: positive('a force in eV/Å above 0').default(50).meta({ description: 'A labeled frame with any force component magnitude above this (eV/Å) is rejected.' }),
     max_rejected_fraction: fraction().default(0.1).meta({ description: 'The stage fails when more than this fraction of frames is rejected.' }),
     contacts: ContactsSchema.prefault({}),
@@ -199,13 +231,36 @@ export const TrainStageSchema = z
   }, { error: 'expected the train stage: a mapping of its settings' })
   .meta({ description: 'Train: one task per committee member.' });
 
+/**
+ * One gate limit of the table in src/gates/limits.ts (the same names and defaults as `ratchet check`): a number is
+ * the fail limit; {warn, fail} sets either or both. Parsed to {warn, fail} (null = not checked), defaults filled in.
+ */
+const gateLimit = (name: LimitName, description: string) => {
+  const d = LIMITS[name];
+  const expected = `a limit in ${d.unit} above 0 (the fail limit), or a mapping {warn, fail}`;
+  const value = (which: string) => positive(`a ${which} limit in ${d.unit} above 0`);
+  const shown = (x: number | null) => (x === null ? 'not checked' : String(x));
+  return z
+    .union([value('fail'), z.strictObject({ warn: value('warn').optional(), fail: value('fail').optional() })], { error: `expected ${expected}` })
+    .transform((v, ctx) => {
+      if (typeof v === 'object' && v.warn !== undefined && v.fail !== undefined && v.warn > v.fail) {
+        ctx.addIssue({ code: 'custom', message: `expected the warn limit at most the fail limit (warn ${v.warn} ${d.unit} is above fail ${v.fail} ${d.unit})`, input: v });
+        return z.NEVER;
+      }
+      return resolveLimit(name, v);
+    })
+    .default(() => resolveLimit(name, undefined))
+    .meta({ description: `${description} A number is the fail limit, or give {warn, fail}. Default: warn ${shown(d.warn)}, fail ${shown(d.fail)}.` });
+};
+
 /** Limits of the errors gate on the held-out frames. */
 export const ErrorLimitsSchema = z
   .strictObject({
-    energy_mae: positive('an energy error in meV/atom above 0').optional().meta({ description: 'Largest energy MAE, meV/atom (unchecked when absent).' }),
-    energy_rmse: positive('an energy error in meV/atom above 0').default(10).meta({ description: 'Largest energy RMSE, meV/atom.' }),
-    force_mae: positive('a force error in meV/Å above 0').optional().meta({ description: 'Largest force-component MAE, meV/Å (unchecked when absent).' }),
-    force_rmse: positive('a force error in meV/Å above 0').default(150).meta({ description: 'Largest force-component RMSE, meV/Å.' }),
+    energy_mae: gateLimit('energy_mae', 'Energy MAE, meV/atom.'),
+    energy_rmse: gateLimit('energy_rmse', 'Energy RMSE, meV/atom.'),
+    force_mae: gateLimit('force_mae', 'Force-component MAE, meV/Å, overall and for each element.'),
+    force_rmse: gateLimit('force_rmse', 'Force-component RMSE, meV/Å, overall and for each element.'),
+    stress_rmse: gateLimit('stress_rmse', 'Stress RMSE over the six Voigt components, GPa (frames with `stress` in both files).'),
   })
   .meta({ description: 'Error limits on the held-out frames (per element for forces).' });
 
@@ -214,10 +269,16 @@ export const ValidateStageSchema = z
     command: command('validate'),
     ...stageCommon,
     errors: ErrorLimitsSchema.prefault({}),
-    max_drift: positive('a drift in meV/atom/ps above 0')
-      .default(1)
-      .meta({ description: 'Largest |slope| of total energy in a constant-energy run, meV/atom/ps.' }),
-    nve_steps: positiveInt('a whole number of steps of at least 1').default(1000).meta({ description: 'Steps of the constant-energy run per condition.' }),
+    max_drift: gateLimit('max_drift', '|slope| of total energy per atom in a constant-energy run, meV/atom/ps (a slope within 2 standard errors of zero never warns).'),
+    max_excursion: gateLimit('max_excursion', 'Largest |E(t) - E(0)| of total energy per atom in a constant-energy run, meV/atom.'),
+    drift_min_frames: int('a whole number of frames of at least 3')
+      .min(3, { error: 'expected a whole number of frames of at least 3' })
+      .default(SAMPLE_LIMITS.drift_min_frames)
+      .meta({ description: 'A constant-energy run with fewer frames fails the drift gate (too few to judge).' }),
+    drift_min_span: nonNegative('a run length in ps of at least 0')
+      .default(SAMPLE_LIMITS.drift_min_span)
+      .meta({ description: 'A constant-energy run shorter than this (ps, first to last frame) fails the drift gate.' }),
+    nve_steps: positiveInt('a whole number of steps of at least 1').max(1_000_000_000, bound('a number of steps', 1_000_000_000, STEPS_GUARD)).default(1000).meta({ description: 'Steps of the constant-energy run per condition.' }),
     nve_timestep: positive('a time step in fs above 0').optional().meta({ description: "Time step of the constant-energy run in fs (default: the condition's)." }),
     contacts: ContactsSchema.prefault({}),
   }, { error: 'expected the validate stage: a mapping of its settings' })
@@ -252,7 +313,7 @@ export const ConditionSchema = z
       .meta({ description: 'Name, also the task directory name of this condition.' }),
     temperature: positive('a temperature in K above 0').meta({ description: 'Temperature in K.' }),
     pressure: num('a pressure in bar').optional().meta({ description: 'Pressure in bar (1 bar = 1e5 Pa; 1 GPa = 10000 bar). Absent: constant volume.' }),
-    steps: positiveInt('a whole number of steps of at least 1').meta({ description: 'MD steps per round.' }),
+    steps: positiveInt('a whole number of steps of at least 1').max(1_000_000_000, bound('a number of steps', 1_000_000_000, STEPS_GUARD)).meta({ description: 'MD steps per round.' }),
     timestep: positive('a time step in fs above 0').default(1).meta({ description: 'MD time step in fs.' }),
     write_every: positiveInt('a whole number of steps of at least 1').default(10).meta({ description: 'A frame is written every this many steps.' }),
     start: z
@@ -265,7 +326,7 @@ export const ConditionSchema = z
 
 export const CommitteeSchema = z
   .strictObject({
-    size: int('a committee size of at least 2').min(2, { error: 'expected a committee size of at least 2' }).default(4).meta({ description: 'Number of models M.' }),
+    size: int('a committee size of at least 2').min(2, { error: 'expected a committee size of at least 2' }).max(1000, bound('a committee size', 1000, 'each member is one train task per round; committees in use have 2 to about 10 members')).default(4).meta({ description: 'Number of models M.' }),
     bootstrap: z.boolean({ error: 'expected true or false' }).default(false).meta({ description: 'Train each member on a bootstrap resample of the training set.' }),
     seed: nonNegativeInt().default(0).meta({ description: 'Base seed; member m uses a seed derived from it and m.' }),
   })
@@ -273,7 +334,7 @@ export const CommitteeSchema = z
 
 export const RoundsSchema = z
   .strictObject({
-    max: positiveInt('a whole number of rounds of at least 1').default(10).meta({ description: 'Stop as exhausted after this many rounds.' }),
+    max: positiveInt('a whole number of rounds of at least 1').max(10_000, bound('a number of rounds', 10_000, PLAN_GUARD)).default(10).meta({ description: 'Stop as exhausted after this many rounds.' }),
     converge: z
       .strictObject({
         confident_fraction: num('a fraction above 0 and at most 1')
@@ -283,6 +344,19 @@ export const RoundsSchema = z
           .meta({ description: "Converged when every condition's confident fraction reaches this (and no runaway frames, validation passed)." }),
       })
       .prefault({}),
+    explore_unvalidated: z
+      .strictObject({
+        max_rounds: nonNegativeInt('a whole number of rounds of at least 0').max(100, { error: 'expected at most 100 rounds in a row (a guard against spending an allocation on a committee that never validates)' })
+          .default(0)
+          .meta({ description: 'A round whose validation fails may still explore (short runs) and label what it finds, at most this many rounds in a row; 0 stops at a failed validation.' }),
+        steps_fraction: num('a fraction above 0 and at most 1')
+          .gt(0, { error: 'expected a fraction above 0 and at most 1' })
+          .max(1, { error: 'expected a fraction above 0 and at most 1' })
+          .default(0.1)
+          .meta({ description: "Share of each condition's steps run in a round that is not validated." }),
+      })
+      .prefault({})
+      .meta({ description: 'A way forward from a committee whose validation fails (often the first one): explore anyway, never counted toward convergence.' }),
   })
   .meta({ description: 'Round limit and convergence target.' });
 
@@ -344,6 +418,7 @@ export const CampaignSchema = z
     conditions: z
       .array(ConditionSchema, { error: 'expected a list of conditions' })
       .min(1, { error: 'expected at least one condition' })
+      .max(1000, bound('a list of conditions', 1000, 'each condition is one simulate and one validate task per round; ' + PLAN_GUARD))
       .meta({ description: 'Exploration conditions of the simulate stage.' }),
     stages: StagesSchema,
     backend: BackendSchema.prefault({}),

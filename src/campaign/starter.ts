@@ -2,7 +2,8 @@
  * The commented starter campaign that `ratchet init DIR` writes: campaign.yaml plus a tiny starting
  * structure (silicon, the 8-atom diamond cubic cell) so that the campaign loads as written.
  */
-import { mkdir, writeFile, access } from 'node:fs/promises';
+import { writeFile, access } from 'node:fs/promises';
+import { ensureTargetDir, TargetDirError } from './target-dir.js';
 import { join, resolve } from 'node:path';
 
 export const STARTER_CAMPAIGN_FILE = 'campaign.yaml';
@@ -56,19 +57,22 @@ rounds:
   max: 10                        # stop as "exhausted" after this many rounds
   converge:
     confident_fraction: 0.99     # converged when every condition reaches this confident fraction, no runaway frames
+  explore_unvalidated:
+    max_rounds: 0                # >0: a round whose validation fails may still explore and label (never converging)
+    steps_fraction: 0.1          # share of each condition's steps run in such a round
 
 # Exploration conditions: one simulate task per condition and round.
 conditions:
-  - name: solid-300K
-    temperature: 300             # K
-    steps: 2000                  # MD steps per round
+  - name: solid-300K              # edit: a name for the condition (it names the simulate task)
+    temperature: 300             # edit: K
+    steps: 2000                  # edit: MD steps per round
     timestep: 1.0                # fs (about 0.5-2 fs with hydrogen present; heavier atoms allow more)
     write_every: 10              # keep a frame every 10 steps
     start: 0                     # index into start, or a path
     seed: 0                      # random seed (default: the condition's position in this list)
-  - name: hot-1200K
-    temperature: 1200
-    steps: 2000
+  - name: hot-1200K               # edit
+    temperature: 1200            # edit
+    steps: 2000                  # edit
     timestep: 1.0
   # - name: compressed
   #   temperature: 600
@@ -88,6 +92,7 @@ stages:
       window:
         lower: 0.05              # eV/Å: committee spread below this is "confident"
         upper: 0.5               # eV/Å: at or above this is "runaway" (never labeled)
+        calibrate: false         # true: divide lower/upper by the measured ratio of true error to spread
       max_per_condition: 50      # frames picked per condition per round
       fingerprint:
         cutoff: 6.0              # Å, per-species-pair distance histograms
@@ -95,42 +100,53 @@ stages:
 
   # Every command runs with bash in its task directory and finds its inputs, parameters and the
   # outputs expected of it in task.json (path in $RATCHET_TASK_JSON; see also the RATCHET_* variables).
+  # Programs kept beside this file are named through $RATCHET_CAMPAIGN_DIR (this file's folder), as
+  # below; list them under programs so the ledger records the sha256 of the version each task ran.
   label:
-    command: python3 label.py    # edit: your reference calculation; writes energy (eV) and forces (eV/Å)
+    command: python3 "$RATCHET_CAMPAIGN_DIR/label.py"    # edit: your reference calculation; writes energy (eV) and forces (eV/Å)
+    # programs: [label.py]       # edit: files or folders the command runs, relative to this file (each must exist)
     frames_per_task: 20          # frames labeled per task
     max_force: 50                # eV/Å: a frame with any force component above this is rejected
     max_rejected_fraction: 0.1   # the stage fails when more frames than this are rejected
     contacts:
       scale: 0.5                 # a pair closer than 0.5 x (sum of covalent radii) is a contact violation
+      # hydrogen_scale: 0.7      # pairs with hydrogen use max(scale, hydrogen_scale) x (sum of covalent radii)
       min_distance: {}           # per-pair limits in Å, e.g. {"Si-Si": 1.5}
     setup:                       # shell lines run before the command
-      - export OMP_NUM_THREADS=4
+      - export OMP_NUM_THREADS=4 # edit (default: no set-up lines)
     resources:
-      cpus: 4
+      cpus: 4                    # edit (default: 1)
       gpus: 0
-      memory: 4G
-      walltime: "02:00:00"
-      # partition: compute
-      # account: my-project
-      # qos: normal
-      extra_directives: []       # raw scheduler lines, copied as written
+      memory: 4G                 # edit (default: the site's)
+      walltime: "02:00:00"       # edit (default: "01:00:00")
+      # partition: compute       # edit
+      # account: my-project      # edit
+      # qos: normal              # edit
+      scheduler_lines: []        # raw scheduler lines, copied as written
     attempts: 2                  # runs per task in all before the stage is blocked
 
   train:
-    command: python3 train.py    # edit: trains one committee member (one task per member)
+    command: python3 "$RATCHET_CAMPAIGN_DIR/train.py"    # edit: trains one committee member (one task per member)
+    # programs: [train.py]       # edit
     params: {}                   # free parameters handed to the command in task.json
     resources:
-      cpus: 4
-      walltime: "04:00:00"
+      cpus: 4                    # edit (default: 1)
+      walltime: "04:00:00"       # edit (default: "01:00:00")
 
   validate:
-    command: python3 validate.py # edit: committee predictions on held-out frames and a constant-energy run
+    command: python3 "$RATCHET_CAMPAIGN_DIR/validate.py"    # edit: committee predictions on held-out frames and a constant-energy run
+    # Gate limits: a number is the fail limit, or give {warn: x, fail: y}; the same names and defaults as
+    # \`ratchet check errors|drift\` (--force-rmse-warn, --force-rmse-fail ...).
     errors:
-      energy_rmse: 10            # meV/atom
-      force_rmse: 150            # meV/Å
+      energy_rmse: {warn: 5, fail: 10}     # meV/atom
+      force_rmse: {warn: 100, fail: 150}   # meV/Å, overall and for each element
       # energy_mae: 5            # meV/atom (checked only when given)
-      # force_mae: 100           # meV/Å    (checked only when given)
-    max_drift: 1.0               # meV/atom/ps, total energy drift of the constant-energy run
+      # force_mae: 100           # meV/Å, overall and per element (checked only when given)
+      # stress_rmse: 0.5         # GPa, 6 Voigt components, frames with stress in both files (checked only when given)
+    max_drift: {warn: 0.1, fail: 1}      # meV/atom/ps, |slope| of total energy in the constant-energy run (warns only beyond 2 standard errors)
+    max_excursion: {warn: 10, fail: 100} # meV/atom, largest |E(t) - E(0)| of that run
+    drift_min_frames: 10         # fewer frames in the constant-energy run fail the drift gate
+    drift_min_span: 1            # ps; a shorter constant-energy run fails the drift gate
     nve_steps: 1000              # steps of the constant-energy run, per condition
     # nve_timestep: 1.0          # fs (default: each condition's time step)
     resources:
@@ -138,31 +154,31 @@ stages:
       walltime: "01:00:00"
 
   simulate:
-    command: python3 md.py       # edit: MD driven by the committee, writing every member's forces
+    command: python3 "$RATCHET_CAMPAIGN_DIR/md.py"    # edit: MD driven by the committee, writing every member's forces
     contacts:
       scale: 0.5
     resources:
       cpus: 1
-      walltime: "02:00:00"
+      walltime: "02:00:00"       # edit (default: "01:00:00")
 
 backend:
   kind: local                    # local | slurm | pbs | lsf | sge
   # jobs: 2                      # local: tasks at once (default: CPU cores)
   # Cluster options:
   # max_array_size: 1000         # largest job array the site accepts
-  # array_throttle: 50           # at most this many array elements running at once
+  # array_throttle: 50           # edit: at most this many array elements running at once (default: no limit)
   # poll_interval: 30            # seconds between scheduler polls
   # submit_retries: 3            # retries of a submit call that failed transiently
   # submit_timeout: 120          # seconds before a scheduler command counts as timed out
   # walltime_factor: 2           # a task killed at its walltime is resubmitted with twice the time...
-  # walltime_max: "24:00:00"     # ...but never more than this
+  # walltime_max: "24:00:00"     # edit: ...but never more than this (default: no maximum)
   # memory_factor: 1             # > 1: a task killed for memory is resubmitted with more memory...
-  # memory_max: "64G"            # ...but never more than this
-  # template_dir: templates      # your own batch-script templates
+  # memory_max: "64G"            # edit: ...but never more than this (default: no maximum)
+  # template_dir: templates      # edit: your own batch-script templates (default: the built-in ones)
 
 budget:
-  # core_hours: 10000            # cap for the whole campaign (absent: no cap)
-  # core_hours_per_round: 2000
+  # core_hours: 10000            # edit: cap for the whole campaign (absent: no cap)
+  # core_hours_per_round: 2000   # edit: cap for one round (absent: no cap)
 `;
 
 /** Thrown when `ratchet init` would overwrite a file. */
@@ -180,7 +196,10 @@ export async function writeStarter(dir: string): Promise<{ campaign: string; str
   for (const path of [campaign, structure]) {
     if (await exists(path)) throw new InitError(`${path}: already exists; not overwriting it (choose another directory or move the file)`);
   }
-  await mkdir(resolve(dir), { recursive: true });
+  // Checked and created one component at a time: a file in the way, /proc, an unwritable place are refused at once.
+  await ensureTargetDir(dir).catch((err: unknown) => {
+    throw err instanceof TargetDirError ? new InitError(err.message) : err;
+  });
   // 'wx' fails if the file appeared in the meantime, so nothing is ever overwritten.
   await writeFile(structure, starterStructure(), { flag: 'wx' });
   await writeFile(campaign, STARTER_CAMPAIGN, { flag: 'wx' });

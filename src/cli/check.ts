@@ -1,5 +1,16 @@
-import { InvalidArgumentError, type Command } from 'commander';
-import { COMMITTEE_DEFAULTS, CONTACTS_DEFAULTS, DRIFT_DEFAULTS, ERRORS_DEFAULTS } from '../gates/defaults.js';
+import { InvalidArgumentError, Option, type Command } from 'commander';
+import {
+  COMMITTEE_DEFAULTS,
+  CONTACTS_DEFAULTS,
+  DRIFT_DEFAULTS,
+  DRIFT_LIMIT_NAMES,
+  ERRORS_DEFAULTS,
+  ERRORS_LIMIT_NAMES,
+  LIMITS,
+  optionStem,
+  type LimitName,
+} from '../gates/defaults.js';
+import { GateInputError } from '../gates/types.js';
 import { reportCheck } from '../gates/run.js';
 import type { GateResult } from '../gates/types.js';
 
@@ -36,6 +47,51 @@ const pairLimit = (value: string, previous: Record<string, number> = {}): Record
   return out;
 };
 
+const camel = (flag: string): string => flag.replace(/-([a-z])/g, (_, c: string) => c.toUpperCase());
+
+/** --<name>-warn and --<name>-fail for each limit of the one table (limits.ts), named as in the campaign file. */
+function limitOptions(cmd: Command, names: readonly LimitName[]): Command {
+  for (const name of names) {
+    const d = LIMITS[name];
+    for (const which of ['warn', 'fail'] as const) {
+      const dv = d[which];
+      cmd.option(
+        `--${optionStem(name)}-${which} <${d.unit}>`,
+        `${which} above this ${d.what}, ${d.unit} (default ${dv === null ? 'not checked' : dv}; campaign key ${name})`,
+        positive,
+      );
+    }
+  }
+  return cmd;
+}
+
+/** The limits given on the command line, by table name (left out when neither warn nor fail was given). */
+function givenLimits<N extends LimitName>(o: Record<string, unknown>, names: readonly N[]): Partial<Record<N, { warn?: number; fail?: number }>> {
+  const out: Partial<Record<N, { warn?: number; fail?: number }>> = {};
+  for (const name of names) {
+    const warn = o[camel(`${optionStem(name)}-warn`)] as number | undefined;
+    const fail = o[camel(`${optionStem(name)}-fail`)] as number | undefined;
+    if (warn !== undefined || fail !== undefined) out[name] = { ...(warn !== undefined ? { warn } : {}), ...(fail !== undefined ? { fail } : {}) };
+  }
+  return out;
+}
+
+const limitFlag = (name: string, which: 'warn' | 'fail') => `--${optionStem(name)}-${which}`;
+
+/** Old option names that were renamed: using one is bad input that names the new one. */
+const RENAMED_DRIFT: Record<string, string> = {
+  '--slope-warn': '--max-drift-warn',
+  '--slope-fail': '--max-drift-fail',
+  '--excursion-warn': '--max-excursion-warn',
+  '--excursion-fail': '--max-excursion-fail',
+};
+
+function refuseRenamed(o: Record<string, unknown>, renamed: Record<string, string>): void {
+  for (const [old, now] of Object.entries(renamed))
+    if (o[camel(old.slice(2))] !== undefined)
+      throw new GateInputError(`${old} was renamed: use ${now} (the same name as the campaign key ${now.slice(2).replace(/-(warn|fail)$/, '').replace(/-/g, '_')})`);
+}
+
 /**
  * `ratchet check contacts|drift|errors|committee FILE... [options] [--json]`. Each gate's module is loaded when its
  * command runs (start-up time counts when checking many files one by one).
@@ -56,6 +112,7 @@ export function register(program: Command): void {
     .description('closest distances overall and per species pair, and every pair closer than its limit')
     .argument('<files...>', 'extended XYZ files (frames numbered across the files in order)')
     .option('--scale <x>', 'limit = x times the sum of covalent radii (Cordero et al. 2008)', positive, CONTACTS_DEFAULTS.scale)
+    .option('--hydrogen-scale <x>', 'pairs with hydrogen: limit = max(scale, x) times the sum of covalent radii', positive, CONTACTS_DEFAULTS.hydrogenScale)
     .option('--pair-limit <A-B=Å>', 'explicit limit in Å for a species pair (repeatable, or comma-separated)', pairLimit)
     .option('--max-per-frame <n>', 'violations listed per frame (all are counted)', count, CONTACTS_DEFAULTS.maxPerFrame)
     .option('--max-violations <n>', 'violations listed in total (all are counted)', count, CONTACTS_DEFAULTS.maxViolations)
@@ -65,6 +122,7 @@ export function register(program: Command): void {
       run('contacts', o.json, async () =>
         (await import('../gates/contacts.js')).checkContacts(files, {
           scale: o.scale,
+          hydrogenScale: o.hydrogenScale,
           pairLimits: o.pairLimit,
           maxPerFrame: o.maxPerFrame,
           maxViolations: o.maxViolations,
@@ -73,17 +131,17 @@ export function register(program: Command): void {
       ),
     );
 
-  check
+  const drift = check
     .command('drift')
     .description('total energy per atom against time: slope, spread, excursion, temperature; fails a run that blew up')
     .argument('<files...>', 'extended XYZ files or thermo tables (CSV or whitespace, header row), read as one run in order')
     .option('--format <kind>', 'auto, xyz or table (auto: .csv .tsv .dat .txt .log .thermo .out are tables)', oneOf('auto', 'xyz', 'table'), 'auto')
     .option('--timestep <fs>', 'MD time step: time = step x it, or frame index x it when frames carry no time or step', positive)
-    .option('--dof <n>', 'degrees of freedom for the temperature (default 3N-3 periodic, 3N otherwise)', count)
+    .option('--dof <n>', 'degrees of freedom for the temperature (default 3N-3: centre-of-mass motion removed; 3 for one atom)', count)
     .option('--energy-source <s>', 'auto (total_energy if present, else energy + kinetic), total or kinetic', oneOf('auto', 'total', 'kinetic'), 'auto')
     .option('--total-key <key>', 'info key of the total energy (eV)', 'total_energy')
     .option('--energy-key <key>', 'info key of the potential energy (eV)', 'energy')
-    .option('--velocities-key <key>', 'per-atom velocities (Å/fs)', 'velocities')
+    .option('--velocities-key <key>', "per-atom velocities (Å/fs); 'momenta': ASE's momenta, converted (also used when a frame has no velocities)", 'velocities')
     .option('--time-key <key>', 'info key of the time (fs)', 'time')
     .option('--atoms <n>', 'thermo tables: number of atoms (1 if the energy column is per atom)', count)
     .option('--time-column <name>', 'thermo tables: time column (default time, time_fs or t)')
@@ -91,39 +149,40 @@ export function register(program: Command): void {
     .option('--energy-column <name>', 'thermo tables: total energy column, eV (default total_energy, etot, toteng, etotal, e_tot)')
     .option('--temperature-column <name>', 'thermo tables: temperature column, K (default temperature or temp)')
     .option('--time-unit <unit>', 'thermo tables: unit of the time column, fs or ps', oneOf('fs', 'ps'), 'fs')
-    .option('--slope-warn <meV>', 'warn above this |slope|, meV/atom/ps', positive, DRIFT_DEFAULTS.slopeWarn)
-    .option('--slope-fail <meV>', 'fail above this |slope|, meV/atom/ps', positive, DRIFT_DEFAULTS.slopeFail)
-    .option('--excursion-warn <meV>', 'warn above this max |E(t)-E(0)|, meV/atom', positive, DRIFT_DEFAULTS.excursionWarn)
-    .option('--excursion-fail <meV>', 'fail above this max |E(t)-E(0)|, meV/atom', positive, DRIFT_DEFAULTS.excursionFail)
+    .option('--drift-min-frames <n>', `fail with fewer usable frames (default ${DRIFT_DEFAULTS.minFrames}; campaign key drift_min_frames)`, count)
+    .option('--drift-min-span <ps>', `fail when the run is shorter, ps (default ${DRIFT_DEFAULTS.minSpan}; campaign key drift_min_span)`, number)
     .option('--workers <n>', 'worker threads (default min(2, cpus))', count)
-    .option('--json', 'print one JSON object')
-    .action((files: string[], o) =>
-      run('drift', o.json, async () =>
-        (await import('../gates/drift.js')).checkDrift(files, {
-          format: o.format,
-          timestep: o.timestep,
-          dof: o.dof,
-          source: o.energySource,
-          totalKey: o.totalKey,
-          energyKey: o.energyKey,
-          velocitiesKey: o.velocitiesKey,
-          timeKey: o.timeKey,
-          atoms: o.atoms,
-          timeColumn: o.timeColumn,
-          stepColumn: o.stepColumn,
-          energyColumn: o.energyColumn,
-          temperatureColumn: o.temperatureColumn,
-          timeUnit: o.timeUnit,
-          slopeWarn: o.slopeWarn,
-          slopeFail: o.slopeFail,
-          excursionWarn: o.excursionWarn,
-          excursionFail: o.excursionFail,
-          workers: o.workers,
-        }),
-      ),
-    );
+    .option('--json', 'print one JSON object');
+  limitOptions(drift, DRIFT_LIMIT_NAMES);
+  for (const old of Object.keys(RENAMED_DRIFT)) drift.addOption(new Option(`${old} <x>`).hideHelp());
+  drift.action((files: string[], o) =>
+    run('drift', o.json, async () => {
+      refuseRenamed(o, RENAMED_DRIFT);
+      return (await import('../gates/drift.js')).checkDrift(files, {
+        format: o.format,
+        timestep: o.timestep,
+        dof: o.dof,
+        source: o.energySource,
+        totalKey: o.totalKey,
+        energyKey: o.energyKey,
+        velocitiesKey: o.velocitiesKey,
+        timeKey: o.timeKey,
+        atoms: o.atoms,
+        timeColumn: o.timeColumn,
+        stepColumn: o.stepColumn,
+        energyColumn: o.energyColumn,
+        temperatureColumn: o.temperatureColumn,
+        timeUnit: o.timeUnit,
+        limits: givenLimits(o, DRIFT_LIMIT_NAMES),
+        limitName: limitFlag,
+        minFrames: o.driftMinFrames,
+        minSpan: o.driftMinSpan,
+        workers: o.workers,
+      });
+    }),
+  );
 
-  check
+  const errors = check
     .command('errors')
     .description('energy and force errors of predictions against reference labels on the same frames')
     .argument('<reference>', 'extended XYZ with the reference energies and forces')
@@ -133,26 +192,25 @@ export function register(program: Command): void {
     .option('--ref-forces-key <key>', 'per-atom reference forces (eV/Å)', 'forces')
     .option('--pred-forces-key <key>', 'per-atom predicted forces (eV/Å)', 'forces')
     .option('--position-tolerance <Å>', 'largest position difference between the files', number, ERRORS_DEFAULTS.positionTolerance)
-    .option('--energy-rmse-warn <meV>', 'warn above this energy RMSE, meV/atom', positive, ERRORS_DEFAULTS.energyRmseWarn)
-    .option('--energy-rmse-fail <meV>', 'fail above this energy RMSE, meV/atom', positive, ERRORS_DEFAULTS.energyRmseFail)
-    .option('--force-rmse-warn <meV>', 'warn above this force RMSE, meV/Å', positive, ERRORS_DEFAULTS.forceRmseWarn)
-    .option('--force-rmse-fail <meV>', 'fail above this force RMSE, meV/Å', positive, ERRORS_DEFAULTS.forceRmseFail)
-    .option('--json', 'print one JSON object')
-    .action((reference: string, predicted: string, o) =>
-      run('errors', o.json, async () =>
-        (await import('../gates/errors.js')).checkErrors(reference, predicted, {
-          refEnergyKey: o.refEnergyKey,
-          predEnergyKey: o.predEnergyKey,
-          refForcesKey: o.refForcesKey,
-          predForcesKey: o.predForcesKey,
-          positionTolerance: o.positionTolerance,
-          energyRmseWarn: o.energyRmseWarn,
-          energyRmseFail: o.energyRmseFail,
-          forceRmseWarn: o.forceRmseWarn,
-          forceRmseFail: o.forceRmseFail,
-        }),
-      ),
-    );
+    .option('--ref-stress-key <key>', 'info key of the reference stress (eV/Å^3, 6 Voigt or 9 numbers)', 'stress')
+    .option('--pred-stress-key <key>', 'info key of the predicted stress (eV/Å^3, 6 Voigt or 9 numbers)', 'stress')
+    .option('--json', 'print one JSON object');
+  limitOptions(errors, ERRORS_LIMIT_NAMES);
+  errors.action((reference: string, predicted: string, o) =>
+    run('errors', o.json, async () =>
+      (await import('../gates/errors.js')).checkErrors(reference, predicted, {
+        refEnergyKey: o.refEnergyKey,
+        predEnergyKey: o.predEnergyKey,
+        refForcesKey: o.refForcesKey,
+        predForcesKey: o.predForcesKey,
+        refStressKey: o.refStressKey,
+        predStressKey: o.predStressKey,
+        positionTolerance: o.positionTolerance,
+        limits: givenLimits(o, ERRORS_LIMIT_NAMES),
+        limitName: limitFlag,
+      }),
+    ),
+  );
 
   check
     .command('committee')
@@ -161,7 +219,7 @@ export function register(program: Command): void {
     .option('--lower <eV/Å>', 'lower edge of the informative window', number, COMMITTEE_DEFAULTS.lower)
     .option('--upper <eV/Å>', 'upper edge of the informative window (runaway at or above)', number, COMMITTEE_DEFAULTS.upper)
     .option('--prefix <name>', 'committee arrays are <prefix>0, <prefix>1, ...', COMMITTEE_DEFAULTS.prefix)
-    .option('--models <m>', 'number of models (default: as many arrays as the first frame has)', count)
+    .option('--models <m>', 'number of models M: every frame must carry exactly <prefix>0 ... <prefix>{M-1} (default: the highest <prefix>k of the first frame plus one)', count)
     .option('--max-runaway-fraction <x>', 'fail when more than this fraction of frames is runaway', number, COMMITTEE_DEFAULTS.maxRunawayFraction)
     .option('--workers <n>', 'worker threads (default min(2, cpus))', count)
     .option('--json', 'print one JSON object')

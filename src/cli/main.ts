@@ -2,6 +2,7 @@
 import { Command } from 'commander';
 import { registerCommands } from './commands.js';
 import { VERSION } from '../version.js';
+import { oneVoice, reportTopLevel } from './errors.js';
 
 const program = new Command();
 program
@@ -10,8 +11,9 @@ program
   .version(VERSION)
   // Usage errors (unknown option, missing argument) are bad input: exit 2. Help and version exit 0.
   .exitOverride((err) => process.exit(err.exitCode === 0 ? 0 : 2));
+// Usage errors in one voice with every other message (subcommands inherit it).
+oneVoice(program);
 registerCommands(program);
 program.parseAsync(process.argv).catch((err: unknown) => {
-  process.stderr.write(`ratchet: ${err instanceof Error ? err.message : String(err)}\n`);
-  process.exitCode = 2;
+  process.exitCode = reportTopLevel(err);
 });

@@ -1,27 +1,45 @@
-import type { Command } from 'commander';
+import { Option, type Command } from 'commander';
 // The command's logic is imported when it runs, so every command starts fast (startup is part of `ratchet check`'s throughput).
 
-/** `ratchet run CAMPAIGN [--backend local] [--jobs N] [--until ROUND|STAGE] [--dry-run]` */
+/** The old name of --stop-before: refused with the new name (exit 2). */
+export function renamedUntil(): Option {
+  return new Option('--until <point>', 'renamed: use --stop-before').hideHelp();
+}
+
+/** The message for a command line that still says --until. */
+export function untilRenamed(command: string): string {
+  return `ratchet ${command}: --until was renamed: use --stop-before POINT (stops before POINT), or --stop-after POINT (runs POINT, then stops)\n`;
+}
+
+/** `ratchet run CAMPAIGN [--backend local] [--jobs N] [--stop-before POINT | --stop-after POINT] [--dry-run]` */
 export function register(program: Command): void {
   program
     .command('run')
-    .description('run a campaign: plan, run and judge its stages until it converges, is blocked, or reaches --until (resumes where it stopped)')
+    .description('run a campaign: plan, run and judge its stages until it converges, is blocked, or reaches --stop-before/--stop-after (resumes where it stopped)')
     .argument('<campaign>', 'the campaign YAML file')
     .option('--backend <name>', "where tasks run (default: the campaign's backend.kind)")
     .option('--jobs <n>', 'tasks at once on the local backend (default: backend.jobs, else the number of cores)')
-    .option('--until <point>', 'stop before a round (2), a stage of a round (r1/train) or the next occurrence of a stage (train)')
+    .option('--stop-before <point>', 'stop before a round (2), a stage of a round (r1/train) or the next occurrence of a stage (train)')
+    .option('--stop-after <point>', 'run up to and including a round (2), a stage of a round (r1/train) or the next occurrence of a stage (train), then stop')
+    .addOption(renamedUntil())
     .option('--dry-run', 'render the next step\'s scripts into .ratchet/plan/<time>/ and print what would run; runs nothing, writes no ledger event')
     .option('--preflight', "check the next step's scripts (bash -n, and the scheduler's own check such as sbatch --test-only) and report problems per stage; submits nothing")
     .option('--allow-over-budget', 'submit even when the core-hour estimate exceeds budget.core_hours or budget.core_hours_per_round (recorded in the ledger)')
     .option('--follow', 'on a cluster backend, keep polling until the stage\'s tasks end (local always waits)')
-    .addHelpText('after', '\nExit codes: 0 finished or advanced, 1 blocked by a gate or failed tasks, 2 bad input, 130 interrupted.')
-    .action(async (campaign: string, o: { backend?: string; jobs?: string; until?: string; dryRun?: boolean; follow?: boolean; preflight?: boolean; allowOverBudget?: boolean }) => {
+    .addHelpText('after', '\nHeld tasks (stopped by ratchet stop, or cancelled with the scheduler\'s own command) are never started again by run: release them with ratchet retry CAMPAIGN TASK|STAGE.\nExit codes: 0 finished or advanced, 1 blocked by a gate, failed or held tasks, 2 bad input, 130 interrupted.')
+    .action(async (campaign: string, o: { backend?: string; jobs?: string; stopBefore?: string; stopAfter?: string; until?: string; dryRun?: boolean; follow?: boolean; preflight?: boolean; allowOverBudget?: boolean }) => {
+      if (o.until !== undefined) {
+        process.stderr.write(untilRenamed('run'));
+        process.exitCode = 2;
+        return;
+      }
       const { runCampaign } = await import('../engine/run.js');
       const r = await runCampaign({
         campaign,
         backend: o.backend,
         jobs: o.jobs,
-        until: o.until,
+        stopBefore: o.stopBefore,
+        stopAfter: o.stopAfter,
         dryRun: o.dryRun,
         follow: o.follow,
         preflight: o.preflight,

@@ -23,7 +23,7 @@ export function register(program: Command): void {
         );
       } catch (err) {
         if (!(err instanceof CampaignError)) throw err;
-        process.stderr.write(err.message + '\n');
+        process.stderr.write(`ratchet: ${err.message}\n`); // one voice with run: the same words, the same prefix
         process.exitCode = 2;
       }
     });

@@ -1,7 +1,7 @@
 /**
  * The round and stage state machine. Each turn looks at the folded state, finds the first stage that
  * has not passed (the frontier) and does the one thing it needs: plan it, start its tasks, wait for
- * them, collect and judge it, or stop (blocked, --until, finished, interrupted). Every step writes its
+ * them, collect and judge it, or stop (blocked, held, --stop-before/--stop-after, finished, interrupted). Every step writes its
  * files before its ledger event and can be repeated after a crash, so a run killed anywhere resumes.
  */
 import { assessConvergence, type ConditionBands } from '../select/converge.js';
@@ -17,11 +17,13 @@ import type { StageVerdict } from './stages/types.js';
 import { frontier, stageRecord, summarizeStage } from './state.js';
 import { killPoint } from './testhook.js';
 import { decideEnded } from './attempts.js';
+import { applyStopRequests, campaignStopOf, describeHold, type StopRequest } from './stop.js';
+import { isUnvalidated, waiveValidation } from './unvalidated.js';
 
 export type Outcome =
   | { kind: 'finished'; state: 'converged' | 'exhausted'; round: number; reasons: string[]; holding: string[] }
   | { kind: 'stopped'; at: Point; until: string }
-  | { kind: 'blocked'; round: number; stage: Stage; why: 'tasks' | 'gate'; reasons: string[]; tasks: string[] }
+  | { kind: 'blocked'; round: number; stage: Stage; why: 'tasks' | 'gate' | 'held'; reasons: string[]; tasks: string[] }
   | { kind: 'waiting'; round: number; stage: Stage; outstanding: number }
   | { kind: 'interrupted'; signal: NodeJS.Signals; cancelled: string[] };
 
@@ -35,6 +37,10 @@ export async function advance(engine: Engine, opts: AdvanceOptions = {}): Promis
   let target: Point | undefined;
   for (;;) {
     if (engine.interrupted) return interrupted(engine);
+    // A person's stop (ratchet stop, from another terminal) is recorded before anything else is done.
+    await applyStopRequests(engine);
+    const whole = campaignStopOf(engine);
+    if (whole) return heldOutcome(engine, whole);
     const s = engine.state;
     if (s.ended) {
       if (s.ended.state === 'exhausted' && engine.view.maxRounds > s.ended.round + 1) {
@@ -63,7 +69,7 @@ export async function advance(engine: Engine, opts: AdvanceOptions = {}): Promis
     }
     if (opts.until) {
       target ??= untilPoint(opts.until, p);
-      if (comparePoints(p, target) >= 0) return { kind: 'stopped', at: p, until: describeUntil(opts.until) };
+      if (comparePoints(p, target) >= 0) return { kind: 'stopped', at: p, until: `${opts.until.after ? '--stop-after' : '--stop-before'} ${describeUntil(opts.until)}` };
     }
     const st = stageRecord(s, p.round, p.stage);
     if (!st) {
@@ -84,6 +90,15 @@ export async function advance(engine: Engine, opts: AdvanceOptions = {}): Promis
         if (w.outstanding > 0) return { kind: 'waiting', round: p.round, stage: p.stage, outstanding: w.outstanding };
         continue;
       }
+      case 'held':
+        return {
+          kind: 'blocked',
+          round: p.round,
+          stage: p.stage,
+          why: 'held',
+          reasons: sum.held.map(describeHold),
+          tasks: sum.held.map((t) => t.id),
+        };
       case 'failed':
         return {
           kind: 'blocked',
@@ -100,13 +115,39 @@ export async function advance(engine: Engine, opts: AdvanceOptions = {}): Promis
       case 'collect':
         await collectAndGate(engine, p.round, p.stage);
         continue;
-      case 'blocked':
-        return { kind: 'blocked', round: p.round, stage: p.stage, why: 'gate', reasons: st.gate?.reasons ?? [], tasks: [] };
+      case 'blocked': {
+        const reasons = [...(st.gate?.reasons ?? [])];
+        if (p.stage === 'validate') {
+          // A committee that fails validation may still explore when the campaign says so (never converging).
+          const w = waiveValidation(engine.view.campaign, s, p.round);
+          if ('event' in w) {
+            await engine.append(w.event);
+            engine.out.line(`${pad(stageId(p.round, p.stage))} not validated: round ${p.round} explores anyway with short runs (rounds.explore_unvalidated, ${w.event.in_a_row} in a row); it cannot converge`);
+            continue;
+          }
+          if (engine.view.campaign.rounds.explore_unvalidated.max_rounds > 0) reasons.push(`not exploring without validation: ${w.refused}`);
+        }
+        return { kind: 'blocked', round: p.round, stage: p.stage, why: 'gate', reasons, tasks: [] };
+      }
       case 'passed':
       case 'pending':
         throw new Error(`internal: the frontier ${stageId(p.round, p.stage)} is ${sum.phase}`);
     }
   }
+}
+
+/** The run ends after a campaign-wide stop: the frontier stage is blocked by its held tasks (or by the stop itself). */
+function heldOutcome(engine: Engine, req: StopRequest): Outcome {
+  const p = frontier(engine.state);
+  const held = [...engine.state.tasks.values()].filter((t) => t.held && t.round === p.round && t.stage === p.stage);
+  return {
+    kind: 'blocked',
+    round: p.round,
+    stage: p.stage,
+    why: 'held',
+    reasons: held.length ? held.map(describeHold) : [`the campaign was stopped by ${req.by} at ${req.at}${req.reason ? `: ${req.reason}` : ''}; nothing was queued or running`],
+    tasks: held.map((t) => t.id),
+  };
 }
 
 async function interrupted(engine: Engine): Promise<Outcome> {
@@ -169,13 +210,15 @@ async function judgeConvergence(engine: Engine, round: number): Promise<void> {
   });
   const val = stageRecord(engine.state, round, 'validate')?.gate;
   const errorsMeasured = val?.gates.some((g) => g.gate === 'errors' && typeof g.figures.frames === 'number' && g.figures.frames > 0) ?? false;
+  const unvalidated = isUnvalidated(engine.state, round);
   const conv = assessConvergence({
     round,
     maxRounds: engine.view.maxRounds,
     target: engine.view.target,
     conditions,
-    validationPassed: val !== undefined && val.verdict !== 'fail' && errorsMeasured,
+    validationPassed: val !== undefined && val.verdict !== 'fail' && errorsMeasured && !unvalidated,
   });
+  if (unvalidated) conv.reasons.push(`round ${round} was not validated (it explored under rounds.explore_unvalidated): it cannot converge`);
   const fractions = conditions.map((c) => `${c.condition} ${c.frames ? (c.confident / c.frames).toFixed(3) : '-'}`).join(', ');
   engine.out.line(`${pad(`r${round}`)} confident fraction: ${fractions} (target ${engine.view.target})`);
   if (conv.state !== 'continue') {

@@ -79,7 +79,8 @@ export async function decideEnded(engine: Engine, round: number, stage: Stage): 
   let n = 0;
   for (const t of st.tasks) {
     const a = current(t);
-    if (!a.ended || a.ended.state === 'succeeded' || a.blocked !== undefined) continue;
+    // A held task waits for a person (ratchet retry): no automatic resubmission.
+    if (!a.ended || a.ended.state === 'succeeded' || a.blocked !== undefined || t.held) continue;
     const dir = abs(engine.view.dir, taskDirRel(t.round, t.stage, t.name));
     const tail = await tailLines(join(dir, STDERR_FILE), 20);
     const d = decide(a.ended.state, effectiveResources(engine.view, t), attemptHistory(t), policy, tail);

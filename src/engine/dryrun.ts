@@ -71,7 +71,7 @@ export async function dryRun(o: DryRunOptions): Promise<RunResult> {
     return { exitCode: 0 };
   }
   if (o.until && comparePoints(p, untilPoint(o.until, p)) >= 0) {
-    out.line(`the campaign stands at ${stageId(p.round, p.stage)}: --until ${describeUntil(o.until)} stops before anything runs`);
+    out.line(`the campaign stands at ${stageId(p.round, p.stage)}: ${o.until.after ? '--stop-after' : '--stop-before'} ${describeUntil(o.until)} stops before anything runs`);
     return { exitCode: 0 };
   }
   const sid = stageId(p.round, p.stage);

@@ -11,7 +11,12 @@ export interface RunStartedEvent {
   command: 'run' | 'retry';
   backend: string;
   jobs: number;
+  /** Older ledgers: the --until point (now stop_before). */
   until?: string;
+  /** --stop-before POINT. */
+  stop_before?: string;
+  /** --stop-after POINT. */
+  stop_after?: string;
   host: string;
   pid: number;
   campaign_sha256: string;
@@ -50,6 +55,40 @@ export interface TaskSubmittedEvent {
   backend: string;
   /** The job was found queued or running (submitted before a crash), not submitted again. */
   adopted?: true;
+  /**
+   * A 'task_started' event follows when the task is seen running: until then it waits for a free slot
+   * (local --jobs) or in the scheduler's queue. Absent in ledgers written before starts were recorded.
+   */
+  records_start?: true;
+  /** The stage's programs (campaign key `programs`) as run by this attempt: path as written -> "sha256:<hex>". */
+  programs?: Record<string, string>;
+}
+
+/**
+ * A submitted task attempt was first seen running (its process started, or the scheduler runs it).
+ * Written at most once per attempt; a task that ends before it is seen running gets none.
+ */
+export interface TaskStartedEvent {
+  type: 'task_started';
+  task: string;
+  attempt: number;
+}
+
+/**
+ * Which campaign file owns this folder's state (the ledger and rounds/). Written first when the ledger
+ * is created, or at the first run of a ledger written before campaigns were recorded (`adopted`).
+ * Another campaign file in the same folder is refused.
+ */
+export interface CampaignIdentityEvent {
+  type: 'campaign_identity';
+  /** The campaign's `name`. */
+  name: string;
+  /** The campaign file's name relative to the campaign folder (what identifies it). */
+  file: string;
+  /** Absolute path of the campaign file when recorded (for information: the folder may move). */
+  path: string;
+  /** The ledger held events before the campaign was recorded (written by an older ratchet). */
+  adopted?: true;
 }
 
 /** A task attempt reached a terminal state. */
@@ -64,6 +103,47 @@ export interface TaskEndedEvent {
   host?: string;
   /** Plain words for anything but success. */
   reason?: string;
+  /** Cancelled by a person outside ratchet (the scheduler's cancel command, a signal to a local task): the task is held. */
+  outside?: true;
+}
+
+/**
+ * `ratchet stop`: who stopped what, when and why. `scope` is "campaign", a stage ("r1/label") or a
+ * task ("r1/label/0003"); `tasks` the tasks held by it (each also gets a 'task_held' event).
+ */
+export interface TasksStoppedEvent {
+  type: 'tasks_stopped';
+  scope: string;
+  /** The user name of the person who asked (os.userInfo()). */
+  by: string;
+  reason?: string;
+  /** When the request was made (it is recorded by the next process holding the lock). */
+  requested_at: string;
+  host: string;
+  pid: number;
+  tasks: string[];
+  /** Jobs cancelled on the backend (queued or running when the stop was applied). */
+  cancelled: number;
+}
+
+/** A task a person stopped or cancelled: never started again until a person releases it (ratchet retry). */
+export interface TaskHeldEvent {
+  type: 'task_held';
+  task: string;
+  attempt: number;
+  /** 'stop': by ratchet stop; 'cancelled': the job was cancelled outside ratchet. */
+  how: 'stop' | 'cancelled';
+  /** The person, where known (ratchet stop records the user name; an outside cancel: the scheduler's account of it). */
+  by?: string;
+  reason: string;
+}
+
+/** A held task released by a person (`ratchet retry`); a new attempt follows when it had run. */
+export interface TaskReleasedEvent {
+  type: 'task_released';
+  task: string;
+  by: string;
+  host: string;
 }
 
 /** A task will run again as attempt `attempt` (by `ratchet retry`, or at once after a cancel or a lost job). */
@@ -155,18 +235,39 @@ export interface ArtifactEvent {
   stage?: Stage;
 }
 
+/**
+ * A failed validate verdict that the campaign's `rounds.explore_unvalidated` lets the round go past: the
+ * round explores with short runs and labels what it finds, is marked as not validated, and never counts
+ * toward convergence.
+ */
+export interface ValidationWaivedEvent {
+  type: 'validation_waived';
+  round: number;
+  reason: string;
+  /** How many rounds in a row (this one included) went on without validation. */
+  in_a_row: number;
+  /** The MD steps each condition runs in this round (condition name -> steps). */
+  steps: Record<string, number>;
+}
+
 export type EngineEvent =
   | RunStartedEvent
   | RunEndedEvent
   | StagePlannedEvent
   | TaskSubmittedEvent
+  | TaskStartedEvent
   | TaskEndedEvent
   | TaskRetryEvent
+  | TasksStoppedEvent
+  | TaskHeldEvent
+  | TaskReleasedEvent
   | StageGatedEvent
   | StageRegateEvent
   | CampaignEndedEvent
   | RoundJudgedEvent
   | CampaignResumedEvent
+  | CampaignIdentityEvent
+  | ValidationWaivedEvent
   | ArtifactEvent;
 
 export type { ExitRecord };

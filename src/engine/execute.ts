@@ -11,17 +11,19 @@ import type { Submission, TaskSpec, TaskStatus } from '../backends/backend.js';
 import { archiveAttempt, writeTaskFiles, TASK_FILE } from '../backends/task-files.js';
 import { readExitRecord, STDERR_FILE, EXIT_RECORD_FILE } from '../backends/exit-record.js';
 import type { Engine } from './context.js';
-import type { TaskEndedEvent } from './events.js';
+import type { TaskEndedEvent, TaskStartedEvent } from './events.js';
 import { stageId, type Stage } from './ids.js';
 import { abs, taskDirRel } from './layout.js';
 import { materialize, taskSpec, writeTasks, type TaskJson } from './plan.js';
 import type { SampleRequest } from './sample-policy.js';
 import { SAMPLE_OUTPUT, SAMPLE_SUMMARY } from './stages/sample.js';
 import { STAGE_DEFS } from './stages/index.js';
-import { current, taskPhase, stageRecord, RERUN_BY_ITSELF, type TaskRecord } from './state.js';
+import { current, isWaiting, taskPhase, stageRecord, RERUN_BY_ITSELF, type TaskRecord } from './state.js';
+import { hashPrograms } from './programs.js';
 import { writeFileAtomic } from './fsutil.js';
 import { killPoint } from './testhook.js';
 import { effectiveResources, guardBudget } from './attempts.js';
+import { applyStopRequests, withOutsideHolds } from './stop.js';
 
 export function taskDirOf(engine: Engine, t: TaskRecord): string {
   return abs(engine.view.dir, taskDirRel(t.round, t.stage, t.name));
@@ -58,6 +60,8 @@ export async function readTaskJson(engine: Engine, t: TaskRecord): Promise<TaskJ
  * is submitted (cluster) or queued (local); the built-in sampling has run to its end.
  */
 export async function startTasks(engine: Engine, tasks: TaskRecord[]): Promise<void> {
+  // The stage's programs, hashed once for all its tasks before anything is written (a missing one is bad input).
+  const programs = tasks.length > 0 ? await hashPrograms(engine.view, tasks[0].stage) : {};
   // New attempts first: move the old records aside, then say so in the ledger.
   const retries = tasks.filter((t) => current(t).ended !== undefined);
   for (const t of retries) {
@@ -109,6 +113,8 @@ export async function startTasks(engine: Engine, tasks: TaskRecord[]): Promise<v
       job_id: s.job_id,
       backend: engine.backend.name,
       ...(s.adopted ? { adopted: true as const } : {}),
+      records_start: true as const,
+      ...(Object.keys(programs).length > 0 ? { programs } : {}),
       ...(r ? { resources: { walltime_s: r.walltime_s, ...(r.memory_mb !== undefined ? { memory_mb: r.memory_mb } : {}), cpus: r.cpus } } : {}),
     });
     killPoint('submitted');
@@ -187,6 +193,7 @@ export function endedEvent(t: TaskRecord, s: TaskStatus): TaskEndedEvent {
     e.host = s.exit.host;
   }
   if (s.reason) e.reason = s.reason;
+  if (s.outside && s.state === 'cancelled') e.outside = true;
   return e;
 }
 
@@ -203,7 +210,9 @@ export async function pollTasks(engine: Engine, tasks: TaskRecord[]): Promise<Ma
         ? { id: t.id, state: exit.exit_code === 0 ? 'succeeded' : 'failed', exit, job_id: a.job_id }
         : { id: t.id, state: 'lost', job_id: a.job_id, reason: 'the built-in sampling was interrupted before it finished' });
     } else {
-      subs.push({ id: t.id, job_id: a.job_id!, dir });
+      // Never seen running (task_started is recorded for attempts that record starts): a job that
+      // vanishes without a trace was cancelled while it waited.
+      subs.push({ id: t.id, job_id: a.job_id!, dir, ...(a.records_start === true && a.started_at === undefined ? { neverStarted: true } : {}) });
     }
   }
   if (subs.length > 0) for (const s of await engine.backend.poll(subs)) out.set(s.id, s);
@@ -224,19 +233,25 @@ export async function waitForStage(engine: Engine, round: number, stage: Stage, 
   const st = stageRecord(engine.state, round, stage)!;
   let first = true;
   for (;;) {
+    // A stop asked for from another terminal (ratchet stop) is recorded before the next poll.
+    await applyStopRequests(engine);
     const running = st.tasks.filter((t) => taskPhase(t) === 'submitted');
     if (running.length === 0) break;
     const statuses = await pollTasks(engine, running);
     const ended: TaskEndedEvent[] = [];
     const endedTasks: TaskRecord[] = [];
+    const started: TaskStartedEvent[] = [];
     for (const t of running) {
       const s = statuses.get(t.id);
       if (s && terminal(s.state)) {
         ended.push(endedEvent(t, s));
         endedTasks.push(t);
+      } else if (s?.state === 'running' && current(t).started_at === undefined && !isBuiltinJob(current(t).job_id)) {
+        started.push({ type: 'task_started', task: t.id, attempt: current(t).n });
       }
     }
-    await engine.appendMany(ended);
+    // Ends first: a slot freed by one task is what let the next one start.
+    await engine.appendMany([...withOutsideHolds(engine.state, ended), ...started]);
     for (let k = 0; k < ended.length; k++) {
       const e = ended[k];
       if (e.state !== 'succeeded') engine.out.line(`${endedTasks[k].id} ${engine.out.word(e.state)}${e.reason ? `: ${indentMore(e.reason)}` : ''}`);
@@ -275,16 +290,19 @@ export function showProgress(engine: Engine, round: number, stage: Stage, force 
   if (!st) return;
   let done = 0;
   let running = 0;
+  let waiting = 0;
   let failed = 0;
   for (const t of st.tasks) {
     const p = taskPhase(t);
-    if (p === 'submitted') running++;
-    else if (p !== 'planned') {
+    if (p === 'submitted') {
+      if (isWaiting(t)) waiting++;
+      else running++;
+    } else if (p !== 'planned') {
       done++;
       if (p !== 'succeeded') failed++;
     }
   }
-  const detail = `${running} running${failed ? `, ${failed} not succeeded` : ''}`;
+  const detail = `${running} running${waiting ? `, ${waiting} waiting` : ''}${failed ? `, ${failed} not succeeded` : ''}`;
   engine.out.progress(stageId(round, stage), done, st.tasks.length, detail, force);
 }
 
@@ -305,6 +323,6 @@ export async function stopOutstanding(engine: Engine): Promise<string[]> {
     const s = statuses.get(t.id);
     if (s && terminal(s.state)) ended.push(endedEvent(t, s));
   }
-  await engine.appendMany(ended);
+  await engine.appendMany(withOutsideHolds(engine.state, ended));
   return ended.map((e) => e.task);
 }

@@ -1,6 +1,6 @@
 /**
  * Names and numbers of the campaign's places: stages in their order, task ids ("r0/label/0003"),
- * and the `--until` stop point. Pure functions.
+ * and the `--stop-before` / `--stop-after` stop point. Pure functions.
  */
 
 export const STAGES = ['sample', 'label', 'train', 'validate', 'simulate'] as const;
@@ -59,8 +59,11 @@ export function comparePoints(a: Point, b: Point): number {
   return a.round !== b.round ? a.round - b.round : stageIndex(a.stage) - stageIndex(b.stage);
 }
 
-/** What `--until` names: a round ("2"), a stage of a round ("r1/train") or a stage ("train": the next one). */
-export type Until = { round: number; stage?: Stage } | { stage: Stage; round?: undefined };
+/**
+ * What `--stop-before` (or `--stop-after`, with `after`) names: a round ("2"), a stage of a round
+ * ("r1/train") or a stage ("train": the next one).
+ */
+export type Until = ({ round: number; stage?: Stage } | { stage: Stage; round?: undefined }) & { after?: boolean };
 
 export function parseUntil(text: string): Until | undefined {
   const t = text.trim();
@@ -73,14 +76,26 @@ export function parseUntil(text: string): Until | undefined {
 
 /**
  * The first point at which work must stop, given where the campaign is now.
- * A bare stage means its next occurrence at or after `now` (so `--until train` while train runs stops at once).
+ * A bare stage means its next occurrence at or after `now` (so `--stop-before train` while train runs stops at once).
  */
 export function untilPoint(until: Until, now: Point): Point {
+  let p: Point;
   if (until.round === undefined) {
     const round = stageIndex(until.stage) >= stageIndex(now.stage) ? now.round : now.round + 1;
-    return { round, stage: until.stage };
+    p = { round, stage: until.stage };
+  } else if (until.after && until.stage === undefined) {
+    // --stop-after 2: the whole of round 2 runs.
+    return { round: until.round + 1, stage: 'sample' };
+  } else {
+    p = { round: until.round, stage: until.stage ?? 'sample' };
   }
-  return { round: until.round, stage: until.stage ?? 'sample' };
+  return until.after ? nextPoint(p) : p;
+}
+
+/** The point that follows p in run order. */
+export function nextPoint(p: Point): Point {
+  const k = stageIndex(p.stage);
+  return k + 1 < STAGES.length ? { round: p.round, stage: STAGES[k + 1] } : { round: p.round + 1, stage: 'sample' };
 }
 
 export function describeUntil(u: Until): string {

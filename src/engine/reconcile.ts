@@ -6,7 +6,8 @@
  * runs): an ended task gets its 'task_ended' event; a task with no exit record and no live process is
  * recorded as 'lost' (the engine then starts it again as a new attempt); a live one is left to run.
  * A task never recorded as started but holding an exit record (run by hand) is recorded as ended:
- * a task with an exit record never runs again.
+ * a task with an exit record never runs again. A job cancelled outside ratchet (scancel, qdel, bkill, a
+ * signal to a local task) is recorded cancelled and held: a person's cancel is never undone by a run.
  * Outputs on disk not yet registered are registered when their stage is collected (collect is idempotent).
  */
 import { readExitRecord } from '../backends/exit-record.js';
@@ -14,6 +15,7 @@ import type { Engine } from './context.js';
 import type { TaskEndedEvent } from './events.js';
 import { endedEvent, pollTasks, taskDirOf } from './execute.js';
 import { current, taskPhase, type TaskRecord } from './state.js';
+import { withOutsideHolds } from './stop.js';
 
 export interface ReconcileReport {
   /** Tasks found ended, by state. */
@@ -53,7 +55,8 @@ export async function reconcile(engine: Engine): Promise<ReconcileReport> {
       reason: 'found an exit record for a task ratchet had not started (run by hand?)',
     });
   }
-  await engine.appendMany(events);
+  // A job cancelled by a person while no run watched is held (recorded in the same write).
+  await engine.appendMany(withOutsideHolds(engine.state, events));
   const ended: Record<string, number> = {};
   for (const e of events) ended[e.state] = (ended[e.state] ?? 0) + 1;
   const startedIds = new Set(started.map((t) => t.id));

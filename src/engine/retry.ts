@@ -1,5 +1,6 @@
 /**
- * `ratchet retry`: mark tasks for a new attempt. For each: the last attempt's exit record and logs are
+ * `ratchet retry`: mark tasks for a new attempt, and release held tasks (stopped by `ratchet stop` or
+ * cancelled with the scheduler's own command: 'task_released' with the person's user name first). For each: the last attempt's exit record and logs are
  * moved to <task dir>/attempts/<n>/, then a 'task_retry' event (manual: the task's count of failures
  * starts again) is written; the run that follows starts it. Retrying a gate-blocked stage with no
  * failed task judges it again ('stage_regate'), e.g. after its limits were changed in the campaign.
@@ -12,6 +13,8 @@ import { exists } from './fsutil.js';
 import { parseTaskRef, stageId, taskId, type Stage } from './ids.js';
 import { current, frontier, stageRecord, taskPhase, type TaskRecord } from './state.js';
 import { killPoint } from './testhook.js';
+import { personName } from './stop.js';
+import { hostname } from 'node:os';
 
 /** A retry that cannot be done as asked (exit code 2). */
 export class RetryError extends Error {
@@ -25,11 +28,16 @@ export class RetryError extends Error {
 export interface RetryMarks {
   tasks: string[];
   regate?: string;
+  /** Held tasks released (by the person who ran retry). */
+  released: string[];
 }
 
 /** What a retry would do: the tasks to run again, or the stage to judge again. Writes nothing. */
 export interface RetryPlan {
+  /** Tasks to run again as new attempts (held ones that had run included). */
   targets: TaskRecord[];
+  /** Held tasks to release ('task_released'); those that never ran start as they are. */
+  release?: TaskRecord[];
   regate?: { round: number; stage: Stage };
 }
 
@@ -56,7 +64,9 @@ export async function planRetry(engine: Engine, refText: string): Promise<RetryP
       throw new RetryError(`${taskId(ref.round, ref.stage, ref.task)} is not a task of ${sid} (its tasks: ${shown || 'none'})`);
     }
     const p = taskPhase(t);
-    if (p === 'submitted' || p === 'queued' || p === 'running') throw new RetryError(`${t.id} is still running; wait for it to end (ratchet status shows it)`);
+    if (p === 'submitted' || p === 'queued' || p === 'running')
+      throw new RetryError(`${t.id} is still ${t.held ? 'being stopped' : 'running'}; wait for it to end (ratchet status shows it)`);
+    if (t.held) return p === 'planned' ? { targets: [], release: [t] } : { targets: [t], release: [t] };
     if (p === 'planned') throw new RetryError(`${t.id} has not run yet; ratchet run starts it`);
     if (p === 'succeeded' && !blocked) throw new RetryError(`${t.id} succeeded and ${sid} is not blocked by its gate; nothing to retry`);
     targets = [t];
@@ -65,6 +75,8 @@ export async function planRetry(engine: Engine, refText: string): Promise<RetryP
       const p = taskPhase(t);
       return p !== 'succeeded' && p !== 'planned' && p !== 'submitted' && p !== 'queued' && p !== 'running';
     });
+    const release = st.tasks.filter((t) => t.held && taskPhase(t) !== 'submitted');
+    if (release.length > 0) return { targets, release };
     if (targets.length === 0 && blocked) {
       // Tasks that succeeded but left an expected output unwritten run again too.
       for (const t of st.tasks) {
@@ -94,7 +106,13 @@ export async function planRetry(engine: Engine, refText: string): Promise<RetryP
 export async function applyRetry(engine: Engine, plan: RetryPlan): Promise<RetryMarks> {
   if (plan.regate) {
     await engine.append({ type: 'stage_regate', round: plan.regate.round, stage: plan.regate.stage });
-    return { tasks: [], regate: stageId(plan.regate.round, plan.regate.stage) };
+    return { tasks: [], regate: stageId(plan.regate.round, plan.regate.stage), released: [] };
+  }
+  // Released first: who let the held tasks go on is recorded before any of them runs again.
+  const release = plan.release ?? [];
+  if (release.length > 0) {
+    const by = personName();
+    await engine.appendMany(release.map((t) => ({ type: 'task_released' as const, task: t.id, by, host: hostname() })));
   }
   for (const t of plan.targets) {
     const archived = await archiveAttempt(taskDirOf(engine, t));
@@ -103,12 +121,12 @@ export async function applyRetry(engine: Engine, plan: RetryPlan): Promise<Retry
       type: 'task_retry',
       task: t.id,
       attempt: current(t).n + 1,
-      reason: 'retry requested',
+      reason: release.includes(t) ? `released by ${personName()} (it was held)` : 'retry requested',
       manual: true,
       ...(archived ? { archived: engine.rel(archived) } : {}),
     });
   }
-  return { tasks: plan.targets.map((t) => t.id) };
+  return { tasks: plan.targets.map((t) => t.id), released: release.map((t) => t.id) };
 }
 
 /** planRetry then applyRetry. */

@@ -2,7 +2,7 @@
  * `ratchet run` and `ratchet retry` as library calls: load the campaign (bad input: exit code 2,
  * nothing written), open the journal (the lock), reconcile, optionally mark tasks for retry, advance
  * as far as possible, print what happened and what to do next. Returns the exit code:
- * 0 finished, advanced, stopped by --until or waiting on a cluster; 1 blocked (a gate or failed tasks)
+ * 0 finished, advanced, stopped by --stop-before/--stop-after or waiting on a cluster; 1 blocked (a gate or failed tasks)
  * or the campaign is locked by another run; 2 bad input; 130 interrupted by SIGINT or SIGTERM.
  */
 import { hostname } from 'node:os';
@@ -23,6 +23,8 @@ import { preflightNextStep } from './preflight-step.js';
 import { applyRetry, planRetry, type RetryPlan } from './retry.js';
 import { samplePolicy as defaultPolicy, type SamplePolicy } from './sample-policy.js';
 import { foldEvents } from './state.js';
+import { applyStopRequests } from './stop.js';
+import { identityEvent, identityProblem, readIdentity } from './identity.js';
 import { campaignView, type CampaignView } from './view.js';
 
 export interface RunOptions {
@@ -32,7 +34,11 @@ export interface RunOptions {
   backend?: string;
   /** Tasks at once (default: the campaign's backend.jobs, else the number of cores); text as typed is checked here. */
   jobs?: number | string;
-  /** Stop before this point: "2", "r1/train" or "train". */
+  /** Stop before this point: "2", "r1/train" or "train" (`--stop-before`). */
+  stopBefore?: string;
+  /** Stop after this point, which runs and is judged: "2", "r1/train" or "train" (`--stop-after`). */
+  stopAfter?: string;
+  /** @deprecated the library's old name of stopBefore (the command line's --until is refused). */
   until?: string;
   dryRun?: boolean;
   /** Keep polling a cluster backend until the stage's tasks end (local always waits). */
@@ -68,12 +74,20 @@ export async function prepare(
   error: (m: string) => void,
 ): Promise<{ view: CampaignView; backend: Backend; until?: Until } | number> {
   let until: Until | undefined;
-  if (opts.until !== undefined) {
-    until = parseUntil(opts.until);
-    if (!until) {
-      error(`--until: expected a round (2), a stage of a round (r1/train) or a stage (train), found ${JSON.stringify(opts.until)}`);
+  const before = opts.stopBefore ?? opts.until;
+  if (before !== undefined && opts.stopAfter !== undefined) {
+    error('--stop-before and --stop-after: choose one');
+    return 2;
+  }
+  const point = before ?? opts.stopAfter;
+  if (point !== undefined) {
+    const flag = before !== undefined ? '--stop-before' : '--stop-after';
+    const parsed = parseUntil(point);
+    if (!parsed) {
+      error(`${flag}: expected a round (2), a stage of a round (r1/train) or a stage (train), found ${JSON.stringify(point)}`);
       return 2;
     }
+    until = before !== undefined ? parsed : { ...parsed, after: true };
   }
   let view: CampaignView;
   try {
@@ -126,6 +140,12 @@ export async function runCampaign(opts: RunOptions): Promise<RunResult> {
       error('--dry-run and --preflight: choose one (--preflight checks the next step with the scheduler, --dry-run only renders it)');
       return { exitCode: 2 };
     }
+    // One state per campaign file: a dry run of another campaign file reads no state of this folder.
+    const other = await otherCampaignProblem(prep.view);
+    if (other) {
+      error(other);
+      return { exitCode: 2 };
+    }
     return dryRun({ view: prep.view, backend, out, error, until, samplePolicy: policy, campaignArg: opts.campaign });
   }
 
@@ -143,8 +163,16 @@ export async function runCampaign(opts: RunOptions): Promise<RunResult> {
     }
     throw err;
   }
+  const folded = foldEvents(journal.history);
+  // One state per campaign file: refuse another campaign file's folder before anything is written.
+  const other = identityProblem(prep.view, folded.identity);
+  if (other) {
+    await journal.close();
+    error(other);
+    return { exitCode: 2 };
+  }
   const view = bringInputsInside(prep.view, false);
-  const engine = new Engine(view, journal, foldEvents(journal.history), backend, out, policy);
+  const engine = new Engine(view, journal, folded, backend, out, policy);
   engine.allowOverBudget = opts.allowOverBudget === true;
   const cluster = backend.drain === undefined;
 
@@ -172,6 +200,9 @@ export async function runCampaign(opts: RunOptions): Promise<RunResult> {
   let outcome: Outcome | undefined;
   let exitCode = 1;
   try {
+    // A stop that no run has recorded yet (ratchet stop while the lock was held) comes first: its tasks
+    // are held before reconcile could see them cancelled.
+    await applyStopRequests(engine);
     // Reconcile first: it only records what already happened (tasks that ended while no run watched).
     const rec = await reconcile(engine);
     let retryPlan: RetryPlan | undefined;
@@ -190,12 +221,15 @@ export async function runCampaign(opts: RunOptions): Promise<RunResult> {
         return { exitCode: code };
       }
     }
+    // A new ledger (or one written before campaigns were recorded: adopted) is bound to this campaign file.
+    if (!engine.state.identity) await engine.append(identityEvent(view, engine.state.events > 0));
     await engine.append({
       type: 'run_started',
       command: opts.retry !== undefined ? 'retry' : 'run',
       backend: backend.name,
       jobs: (backend as { jobs?: number }).jobs ?? 0,
-      ...(opts.until !== undefined ? { until: opts.until } : {}),
+      ...((opts.stopBefore ?? opts.until) !== undefined ? { stop_before: opts.stopBefore ?? opts.until } : {}),
+      ...(opts.stopAfter !== undefined ? { stop_after: opts.stopAfter } : {}),
       ...(opts.preflight ? { preflight: true } : {}),
       ...(opts.allowOverBudget ? { allow_over_budget: true } : {}),
       host: hostname(),
@@ -214,8 +248,9 @@ export async function runCampaign(opts: RunOptions): Promise<RunResult> {
     }
     if (retryPlan) {
       const marks = await applyRetry(engine, retryPlan);
+      if (marks.released.length) out.line(`released ${marks.released.length} held task(s): ${marks.released.join(', ')}`);
       if (marks.regate) out.line(`${marks.regate}: no failed task; its gate will judge it again`);
-      else out.line(`retrying ${marks.tasks.length} task(s): ${marks.tasks.join(', ')}`);
+      else if (marks.tasks.length) out.line(`retrying ${marks.tasks.length} task(s): ${marks.tasks.join(', ')}`);
     }
     outcome = await advance(engine, { until, follow: opts.follow });
     exitCode = outcomeExitCode(outcome);
@@ -236,6 +271,16 @@ export async function runCampaign(opts: RunOptions): Promise<RunResult> {
     await journal.close();
   }
   return { exitCode, outcome };
+}
+
+/** The refusal when the folder's state belongs to another campaign file (a ledger that cannot be read is left to the caller). */
+async function otherCampaignProblem(view: CampaignView): Promise<string | undefined> {
+  try {
+    return identityProblem(view, await readIdentity(view.dir));
+  } catch (err) {
+    if (err instanceof LedgerError) return undefined;
+    throw err;
+  }
 }
 
 export function outcomeExitCode(o: Outcome): number {
@@ -280,7 +325,7 @@ export function describeOutcome(o: Outcome, campaignArg: string): string[] {
             `next: raise rounds.max in the campaign (or change what held it back) and run: ratchet run ${c}`,
           ];
     case 'stopped':
-      return [`stopped before ${stageId(o.at.round, o.at.stage)} (--until ${o.until}); run again without --until to go on`];
+      return [`stopped before ${stageId(o.at.round, o.at.stage)} (${o.until}); run again without ${o.until.split(' ')[0]} to go on`];
     case 'waiting':
       return [`${o.outstanding} task(s) of ${stageId(o.round, o.stage)} still queued or running; run again (ratchet run ${c}) to follow them`];
     case 'interrupted':
@@ -290,6 +335,15 @@ export function describeOutcome(o: Outcome, campaignArg: string): string[] {
       ];
     case 'blocked': {
       const sid = stageId(o.round, o.stage);
+      if (o.why === 'held') {
+        return [
+          o.tasks.length ? `${sid} is held: ${o.tasks.length} task(s) stopped or cancelled by a person; no run starts them again` : `${sid}: the campaign was stopped`,
+          ...o.reasons.map((r) => `  - ${r}`),
+          o.tasks.length
+            ? `next: when it should go on, release ${o.tasks.length === 1 ? 'it' : 'them'} with: ratchet retry ${c} ${o.tasks.length === 1 ? o.tasks[0] : sid}`
+            : `next: ratchet run ${c} goes on from here`,
+        ];
+      }
       const lines = [o.why === 'tasks' ? `${sid} is blocked: ${o.tasks.length} task(s) failed` : `${sid} is blocked by its gate:`];
       for (const r of o.reasons) lines.push(`  - ${r.replace(/\n/g, '\n    ')}`);
       if (o.why === 'tasks') {

@@ -9,6 +9,7 @@ import { STAGES, type Stage, isStage } from './ids.js';
 import type {
   ArtifactEvent,
   CampaignEndedEvent,
+  CampaignIdentityEvent,
   RunEndedEvent,
   RunStartedEvent,
   StageGatedEvent,
@@ -32,6 +33,12 @@ export interface Attempt {
   resources?: { walltime_s: number; memory_mb?: number; cpus: number };
   /** Why this attempt's failure blocks the stage (task_blocked). */
   blocked?: string;
+  /** Its start is recorded by a 'task_started' event (task_submitted.records_start). */
+  records_start?: boolean;
+  /** When it was first seen running (task_started). */
+  started_at?: string;
+  /** The stage's programs as this attempt ran them (task_submitted.programs). */
+  programs?: Record<string, string>;
 }
 
 export interface TaskRecord {
@@ -42,6 +49,8 @@ export interface TaskRecord {
   name: string;
   /** attempts[k] is attempt k + 1; the last one is current. */
   attempts: Attempt[];
+  /** A person stopped or cancelled it (task_held): never started again until released (task_released). */
+  held?: { how: 'stop' | 'cancelled'; by?: string; reason: string; at: string; attempt: number };
 }
 
 export interface StageRecord {
@@ -54,6 +63,11 @@ export interface StageRecord {
   gate?: StageGatedEvent & { seq: number; at: string };
   /** Verdicts ever given (history, for status and the report). */
   verdicts: number;
+  /**
+   * A failed validate verdict the campaign let the round go past (rounds.explore_unvalidated): the round
+   * explores but is not validated and never counts toward convergence. Cleared with the verdict.
+   */
+  waived?: { reason: string; at: string; steps: Record<string, number> };
 }
 
 export interface RoundRecord {
@@ -70,6 +84,8 @@ export interface CampaignState {
   /** Rounds whose end was judged (round_judged, or campaign_ended). */
   judged: Set<number>;
   lastRun?: { started: RunStartedEvent & { seq: number; at: string }; ended?: RunEndedEvent & { at: string } };
+  /** The campaign file that owns this folder's state (campaign_identity), when recorded. */
+  identity?: CampaignIdentityEvent & { seq: number; at: string };
   events: number;
   lastSeq: number;
 }
@@ -120,8 +136,21 @@ export function applyEvent(s: CampaignState, e: LedgerEvent): CampaignState {
       a.backend = e.backend as string;
       a.submitted_at = e.at;
       if (e.resources && typeof e.resources === 'object') a.resources = e.resources as Attempt['resources'];
+      if (e.records_start === true) a.records_start = true;
+      if (e.programs && typeof e.programs === 'object') a.programs = e.programs as Record<string, string>;
       break;
     }
+    case 'task_started': {
+      const t = s.tasks.get(e.task as string);
+      if (!t) break;
+      const a = attemptFor(t, e.attempt as number);
+      if (a.started_at === undefined) a.started_at = e.at;
+      break;
+    }
+    case 'campaign_identity':
+      // The first one counts (a second cannot come through the engine).
+      if (!s.identity && typeof e.file === 'string') s.identity = e as unknown as CampaignIdentityEvent & { seq: number; at: string };
+      break;
     case 'task_ended': {
       const t = s.tasks.get(e.task as string);
       if (!t) break;
@@ -138,7 +167,20 @@ export function applyEvent(s: CampaignState, e: LedgerEvent): CampaignState {
         t.attempts.push({ n, reason: e.reason as string, ...(e.manual === true ? { manual: true } : {}), ...changed });
       }
       const st = stageRecord(s, t.round, t.stage);
-      if (st) st.gate = undefined;
+      if (st) {
+        st.gate = undefined;
+        st.waived = undefined;
+      }
+      break;
+    }
+    case 'task_held': {
+      const t = s.tasks.get(e.task as string);
+      if (t) t.held = { how: e.how === 'cancelled' ? 'cancelled' : 'stop', ...(typeof e.by === 'string' ? { by: e.by } : {}), reason: String(e.reason ?? ''), at: e.at, attempt: e.attempt as number };
+      break;
+    }
+    case 'task_released': {
+      const t = s.tasks.get(e.task as string);
+      if (t) t.held = undefined;
       break;
     }
     case 'task_blocked': {
@@ -151,11 +193,20 @@ export function applyEvent(s: CampaignState, e: LedgerEvent): CampaignState {
       if (!st) break;
       st.gate = e as unknown as StageGatedEvent & { seq: number; at: string };
       st.verdicts++;
+      st.waived = undefined;
+      break;
+    }
+    case 'validation_waived': {
+      const st = stageRecord(s, e.round as number, 'validate');
+      if (st?.gate?.verdict === 'fail') st.waived = { reason: e.reason as string, at: e.at, steps: (e.steps as Record<string, number>) ?? {} };
       break;
     }
     case 'stage_regate': {
       const st = stageRecord(s, e.round as number, e.stage as Stage);
-      if (st) st.gate = undefined;
+      if (st) {
+        st.gate = undefined;
+        st.waived = undefined;
+      }
       break;
     }
     case 'artifact': {
@@ -215,6 +266,16 @@ export function current(t: TaskRecord): Attempt {
 }
 
 /**
+ * A started-but-not-ended task ('submitted') that has not begun to run: waiting for a free slot
+ * (local --jobs) or in the scheduler's queue. Only attempts whose start is recorded can tell;
+ * older ledgers' submitted tasks count as running.
+ */
+export function isWaiting(t: TaskRecord): boolean {
+  const a = currentAttempt(t);
+  return a.ended === undefined && a.job_id !== undefined && a.records_start === true && a.started_at === undefined;
+}
+
+/**
  * Terminal states that say nothing about the task itself (the run was interrupted, the job vanished,
  * the node died, the job was preempted): the engine starts a new attempt on its own.
  */
@@ -230,6 +291,7 @@ export type StagePhase =
   | 'ready' // planned, some tasks to start
   | 'running' // some tasks started, none to start
   | 'failed' // some task failed for good: blocked until retry
+  | 'held' // a person stopped or cancelled some task: blocked until it is released (retry)
   | 'collect' // all tasks succeeded: collect outputs, then judge
   | 'passed'
   | 'blocked'; // the gate failed
@@ -239,6 +301,8 @@ export interface StageSummary {
   counts: Partial<Record<TaskPhase, number>>;
   /** Tasks that failed and may not run again without `ratchet retry`. */
   failed: TaskRecord[];
+  /** Tasks a person stopped or cancelled (ended, or never started): not started until released. */
+  held: TaskRecord[];
   /** Tasks to start: never started, or ended in a way that calls for a new attempt. */
   toStart: TaskRecord[];
   running: TaskRecord[];
@@ -271,14 +335,16 @@ export function summarizeStage(st: StageRecord | undefined, opts: SummaryOptions
   const failed: TaskRecord[] = [];
   const toStart: TaskRecord[] = [];
   const running: TaskRecord[] = [];
-  if (!st) return { phase: 'pending', counts, failed, toStart, running };
+  const held: TaskRecord[] = [];
+  if (!st) return { phase: 'pending', counts, failed, held, toStart, running };
   const limit = opts.attempts ?? 1;
   for (const t of st.tasks) {
     const p = taskPhase(t);
     counts[p] = (counts[p] ?? 0) + 1;
-    if (p === 'planned') toStart.push(t);
-    else if (p === 'submitted' || p === 'queued' || p === 'running') running.push(t);
+    if (p === 'submitted' || p === 'queued' || p === 'running') running.push(t);
     else if (p === 'succeeded') continue;
+    else if (t.held) held.push(t);
+    else if (p === 'planned') toStart.push(t);
     else if (currentAttempt(t).blocked !== undefined) failed.push(t);
     else if (RERUN_BY_ITSELF.has(p)) (opts.restarted?.has(t.id) ? failed : toStart).push(t);
     else (countedFailures(t) < limit ? toStart : failed).push(t);
@@ -286,10 +352,11 @@ export function summarizeStage(st: StageRecord | undefined, opts: SummaryOptions
   let phase: StagePhase;
   if (toStart.length > 0) phase = 'ready';
   else if (running.length > 0) phase = 'running';
+  else if (held.length > 0) phase = 'held';
   else if (failed.length > 0) phase = 'failed';
   else if (!st.gate) phase = 'collect';
-  else phase = st.gate.verdict === 'fail' ? 'blocked' : 'passed';
-  return { phase, counts, failed, toStart, running };
+  else phase = st.gate.verdict === 'fail' && !st.waived ? 'blocked' : 'passed';
+  return { phase, counts, failed, held, toStart, running };
 }
 
 /** The first stage (in run order) that has not passed: where the campaign stands. */
@@ -297,7 +364,7 @@ export function frontier(s: CampaignState): { round: number; stage: Stage } {
   for (const rr of s.rounds) {
     for (const stage of STAGES) {
       const st = rr.stages[stage];
-      if (!st || !st.gate || st.gate.verdict === 'fail') return { round: rr.round, stage };
+      if (!st || !st.gate || (st.gate.verdict === 'fail' && !st.waived)) return { round: rr.round, stage };
     }
   }
   return { round: s.rounds.length, stage: 'sample' };

@@ -13,9 +13,12 @@ import { STAGES, stageId, type Stage } from './ids.js';
 import type { Output } from './output.js';
 import { describeOutcome } from './run.js';
 import type { ConditionFigures } from './stages/simulate.js';
-import { applyEvent, emptyState, frontier, summarizeStage, type CampaignState, type StagePhase, type TaskPhase } from './state.js';
+import { applyEvent, emptyState, frontier, isWaiting, summarizeStage, taskPhase, type CampaignState, type StagePhase, type TaskPhase } from './state.js';
+import { identityProblem } from './identity.js';
 import { campaignView, type CampaignView } from './view.js';
 import { usage } from './attempts.js';
+import { describeHold } from './stop.js';
+import { shellQuote } from '../backends/shell.js';
 
 export interface StageStatus {
   stage: Stage;
@@ -25,6 +28,10 @@ export interface StageStatus {
   counts: Partial<Record<TaskPhase, number>>;
   /** Attempts made in all (a task run twice counts 2). */
   attempts: number;
+  /** Of the started tasks not yet ended (counts.submitted): those seen running ... */
+  running: number;
+  /** ... and those waiting for a free slot (local --jobs) or in the scheduler's queue. */
+  waiting: number;
   verdict?: 'pass' | 'warn' | 'fail';
   reasons?: string[];
   figures?: Record<string, unknown>;
@@ -40,7 +47,14 @@ export interface RoundStatus {
 }
 
 export interface StatusReport {
-  campaign: { name: string; file: string; dir: string; sha256: string };
+  campaign: {
+    name: string;
+    file: string;
+    dir: string;
+    sha256: string;
+    /** The campaign file that owns the folder's state, as the ledger records it (absent: not recorded yet). */
+    recorded?: { name: string; file: string; path: string; adopted?: true };
+  };
   /** A ratchet process holding the campaign's lock now. */
   running: { host?: string; pid?: number; started?: string; command?: string; alive: boolean | null } | null;
   ledger: { events: number; torn_line?: number };
@@ -50,7 +64,9 @@ export interface StatusReport {
   rounds: RoundStatus[];
   target: number;
   conditions: string[];
-  blocking?: { stage: string; why: 'tasks' | 'gate'; reasons: string[]; next: string[] };
+  blocking?: { stage: string; why: 'tasks' | 'gate' | 'held'; reasons: string[]; next: string[] };
+  /** Tasks a person stopped (ratchet stop) or cancelled with the scheduler's own command: never started again until released. */
+  held?: { task: string; how: 'stop' | 'cancelled'; by?: string; reason: string; at: string; release: string }[];
   last_run?: { command: string; started: string; outcome?: string; exit_code?: number; ended?: string };
   /** Core-hours used (exit records' end - start x cpus), by round ("r0") and stage ("r0/label"), and the budget. */
   core_hours: { total: number; by_round: Record<string, number>; by_stage: Record<string, number>; unknown_attempts: number; budget: { core_hours?: number; core_hours_per_round?: number } };
@@ -74,7 +90,14 @@ export function buildStatus(view: CampaignView, state: CampaignState, campaignAr
         tasks: st?.tasks.length ?? 0,
         counts: sum.counts,
         attempts: st ? st.tasks.reduce((n, t) => n + t.attempts.filter((a) => a.job_id !== undefined || a.ended).length, 0) : 0,
+        running: 0,
+        waiting: 0,
       };
+      for (const t of sum.running) {
+        if (taskPhase(t) !== 'submitted') continue;
+        if (isWaiting(t)) s.waiting++;
+        else s.running++;
+      }
       if (st?.gate) {
         s.verdict = st.gate.verdict;
         s.reasons = st.gate.reasons;
@@ -90,7 +113,15 @@ export function buildStatus(view: CampaignView, state: CampaignState, campaignAr
     return out;
   });
   const report: StatusReport = {
-    campaign: { name: view.name, file: campaignArg, dir: view.dir, sha256: view.sha256 },
+    campaign: {
+      name: view.name,
+      file: campaignArg,
+      dir: view.dir,
+      sha256: view.sha256,
+      ...(state.identity
+        ? { recorded: { name: state.identity.name, file: state.identity.file, path: state.identity.path, ...(state.identity.adopted ? { adopted: true as const } : {}) } }
+        : {}),
+    },
     running: null,
     ledger: { events: state.events },
     at: state.ended ? null : frontier(state),
@@ -126,11 +157,24 @@ export function buildStatus(view: CampaignView, state: CampaignState, campaignAr
       };
     } else if (sum.phase === 'blocked') {
       o = { kind: 'blocked', round, stage, why: 'gate', tasks: [], reasons: st?.gate?.reasons ?? [] };
+    } else if (sum.phase === 'held') {
+      o = { kind: 'blocked', round, stage, why: 'held', tasks: sum.held.map((t) => t.id), reasons: sum.held.map(describeHold) };
     }
     if (o && o.kind === 'blocked') {
       const lines = describeOutcome(o, campaignArg);
       report.blocking = { stage: stageId(round, stage), why: o.why, reasons: o.reasons, next: lines.filter((l) => /^\s*(next:|\()/.test(l)).map((l) => l.trim()) };
     }
+  }
+  const held = [...state.tasks.values()].filter((t) => t.held);
+  if (held.length) {
+    report.held = held.map((t) => ({
+      task: t.id,
+      how: t.held!.how,
+      ...(t.held!.by ? { by: t.held!.by } : {}),
+      reason: t.held!.reason,
+      at: t.held!.at,
+      release: `ratchet retry ${shellQuote(campaignArg)} ${t.id}`,
+    }));
   }
   return report;
 }
@@ -161,6 +205,12 @@ export async function campaignStatus(campaignArg: string, error: (m: string) => 
       return { exitCode: 2 };
     }
     throw err;
+  }
+  // One state per campaign file: another campaign file's folder is not this campaign's status.
+  const other = identityProblem(view, folded.state.identity);
+  if (other) {
+    error(other);
+    return { exitCode: 2 };
   }
   const report = buildStatus(view, folded.state, campaignArg);
   if (folded.torn) report.ledger.torn_line = folded.torn.line;
@@ -242,8 +292,18 @@ export function formatStatus(r: StatusReport, out: Output): void {
   if (r.at) {
     const rr = r.rounds[r.at.round];
     const s = rr?.stages.find((k) => k.stage === r.at!.stage);
+    if (r.held?.length) {
+      out.line(`held (never started again until a person releases them):`);
+      for (const h of r.held.slice(0, 20)) {
+        const how = h.how === 'cancelled' ? 'cancelled by a person' : `stopped by ${h.by ?? 'a person'}`;
+        out.line(`  ${pad(h.task, 20)} ${how}: ${oneLine(h.reason, 200)}`);
+        out.line(`  ${' '.repeat(20)} run it again with: ${h.release}`);
+      }
+      if (r.held.length > 20) out.line(`  ... and ${r.held.length - 20} more (ratchet status --json lists them)`);
+    }
     if (r.blocking) {
-      out.line(`${out.word('blocked')}: ${r.blocking.stage} (${r.blocking.why === 'tasks' ? 'failed tasks' : 'its gate failed'})`);
+      const why = { tasks: 'failed tasks', gate: 'its gate failed', held: 'held tasks' }[r.blocking.why];
+      out.line(`${out.word('blocked')}: ${r.blocking.stage} (${why})`);
       for (const reason of r.blocking.reasons) {
         const lines = reason.split('\n');
         out.line(`  - ${oneLine(lines[0], 300)}`);
@@ -253,9 +313,8 @@ export function formatStatus(r: StatusReport, out: Output): void {
       for (const n of r.blocking.next) out.line(n);
     } else if (s && (s.phase === 'running' || s.phase === 'ready')) {
       const done = Object.entries(s.counts).filter(([k]) => k !== 'planned' && k !== 'submitted').reduce((n, [, v]) => n + (v ?? 0), 0);
-      out.progress(`now: ${stageId(r.at.round, r.at.stage)}`, done, s.tasks, `${s.counts.submitted ?? 0} running`, true);
-      out.endProgress(`now: ${stageId(r.at.round, r.at.stage)}`);
-      if (out.tty) out.line(`now: ${stageId(r.at.round, r.at.stage)} ${done}/${s.tasks} ended, ${s.counts.submitted ?? 0} running`);
+      const live = `${s.running} running${s.waiting ? `, ${s.waiting} waiting` : ''}`;
+      out.line(`now: ${stageId(r.at.round, r.at.stage)} ${done}/${s.tasks} ended, ${live}`);
       if (!r.running || r.running.alive === false) out.line(`next: ratchet run ${r.campaign.file}`);
     } else {
       out.line(`next: ${stageId(r.at.round, r.at.stage)}; run: ratchet run ${r.campaign.file}`);
@@ -275,11 +334,14 @@ function cellText(out: Output, s: StageStatus): string {
     case 'failed':
       w = 'failed';
       break;
+    case 'held':
+      w = 'held';
+      break;
     case 'collect':
       w = 'judging';
       break;
     default:
-      w = (s.counts.submitted ?? 0) > 0 ? 'running' : 'ready';
+      w = s.running > 0 ? 'running' : s.waiting > 0 ? 'waiting' : 'ready';
   }
   const plain = `${w} ${ok}/${s.tasks}`;
   return `${out.word(w)} ${ok}/${s.tasks}${' '.repeat(Math.max(1, CELL - plain.length))}`;

@@ -80,7 +80,7 @@ export function campaignView(loaded: LoadedCampaign): CampaignView {
         partition: r.partition,
         account: r.account,
         qos: r.qos,
-        extra: r.extra_directives,
+        extra: r.scheduler_lines,
       },
       params: st.params,
       attempts: st.attempts,

@@ -6,6 +6,19 @@
  * per-pair limit in Å, or scale x (r_cov,i + r_cov,j) with Cordero et al. 2008 covalent radii (elements.ts).
  * The default scale 0.5 is common practice (no single published source): bonded atoms sit near the sum of their
  * covalent radii, and half that sum is far closer than any physical contact.
+ *
+ * Pairs with hydrogen use max(scale, hydrogenScale) x (r_cov,i + r_cov,j), hydrogenScale 0.7 by default. Hydrogen's
+ * radius (0.31 Å) is the smallest of all, so half the sum leaves limits of a few tenths of an Å (H-H 0.31 Å, O-H 0.485 Å)
+ * that pass H-H at 0.40 Å and O-H at 0.55 Å, geometries no system a potential is trained on comes near. 0.7 is this
+ * tool's choice, not a published figure: above 0.645 (0.40 / 0.62, to catch H-H at 0.40 Å) and 0.567 (0.55 / 0.97,
+ * O-H at 0.55 Å), and low enough to leave every real bond to hydrogen a wide margin for thermal and zero-point motion:
+ * limits H-H 0.434, O-H 0.679, N-H 0.714, C-H 0.749 Å against bonds of 0.741 (H2), 0.958 (water), 1.012 (ammonia) and
+ * 1.087 Å (methane) (experimental geometries as tabulated in the NIST CCCBDB, values from memory, checked in
+ * test/gates/contacts-molecules.test.ts against ASE's g2 set); hydrogen bonds (H...O 1.6-2.0 Å) are further still.
+ * Heavy-atom pairs keep `scale`.
+ *
+ * A failure names its most severe violation (smallest distance / limit over all frames; ties: earliest frame, then
+ * lowest i, j) as `worst_violation`; `min_distance` stays the closest pair of all, violating or not.
  */
 import { covalentRadius } from '../atoms/elements.js';
 import type { Frame } from '../atoms/frame.js';
@@ -19,6 +32,8 @@ export { CONTACTS_DEFAULTS };
 
 export interface ContactsFrameOptions {
   scale?: number;
+  /** Pairs with hydrogen: limit = max(scale, hydrogenScale) x sum of covalent radii (default CONTACTS_DEFAULTS.hydrogenScale). */
+  hydrogenScale?: number;
   /** Limits in Å by species pair; keys "A-B" in either order (normalised to alphabetical). */
   pairLimits?: Record<string, number>;
   maxPerFrame?: number;
@@ -75,8 +90,16 @@ export function normalisePairLimits(limits: Record<string, number> | undefined):
   return out;
 }
 
-/** Limits for every species pair of a frame. Throws GateInputError when a species has no radius and no explicit limit. */
-export function pairLimitsFor(species: readonly string[], scale: number, explicit: Record<string, number>): Record<string, number> {
+/**
+ * Limits for every species pair of a frame: explicit ones, else scale x (r_i + r_j), or max(scale, hydrogenScale) x
+ * (r_i + r_j) for a pair with hydrogen. Throws GateInputError when a species has no radius and no explicit limit.
+ */
+export function pairLimitsFor(
+  species: readonly string[],
+  scale: number,
+  explicit: Record<string, number>,
+  hydrogenScale: number = CONTACTS_DEFAULTS.hydrogenScale,
+): Record<string, number> {
   const names = [...new Set(species)].sort();
   const radius = new Map<string, number | Error>();
   for (const s of names) {
@@ -98,7 +121,8 @@ export function pairLimitsFor(species: readonly string[], scale: number, explici
       const rb = radius.get(names[q]);
       const err = ra instanceof Error ? ra : rb instanceof Error ? rb : null;
       if (err) throw new GateInputError(`${err.message}; give an explicit limit for the pair ${key}`);
-      out[key] = scale * ((ra as number) + (rb as number));
+      const s = names[p] === 'H' || names[q] === 'H' ? Math.max(scale, hydrogenScale) : scale;
+      out[key] = s * ((ra as number) + (rb as number));
     }
   }
   return out;
@@ -110,17 +134,17 @@ const NO_LIMITS = { limits: {}, text: '{}' };
 /** Limits per species set, scale and explicit limits (a file usually has one species set). */
 const limitsCache = new Map<string, Record<string, number>>();
 
-function limitsFor(names: string[], scale: number, pairLimits: Record<string, number> | undefined): Record<string, number> {
+function limitsFor(names: string[], scale: number, hydrogenScale: number, pairLimits: Record<string, number> | undefined): Record<string, number> {
   let explicit = pairLimits === undefined ? NO_LIMITS : normalisedLimits.get(pairLimits);
   if (explicit === undefined) {
     const limits = normalisePairLimits(pairLimits);
     explicit = { limits, text: JSON.stringify(limits) };
     normalisedLimits.set(pairLimits!, explicit);
   }
-  const key = `${scale}\u0000${names.join('\u0000')}\u0000${explicit.text}`;
+  const key = `${scale}\u0000${hydrogenScale}\u0000${names.join('\u0000')}\u0000${explicit.text}`;
   let limits = limitsCache.get(key);
   if (limits === undefined) {
-    limits = pairLimitsFor(names, scale, explicit.limits);
+    limits = pairLimitsFor(names, scale, explicit.limits, hydrogenScale);
     if (limitsCache.size > 64) limitsCache.clear();
     limitsCache.set(key, limits);
   }
@@ -131,6 +155,7 @@ function limitsFor(names: string[], scale: number, pairLimits: Record<string, nu
 /** The per-frame part of the contacts gate (pure; what mapFrames runs on each frame). */
 export function contactsFrame(frame: Frame, _index: number, options: ContactsFrameOptions = {}): ContactsSample {
   const scale = options.scale ?? CONTACTS_DEFAULTS.scale;
+  const hydrogenScale = options.hydrogenScale ?? CONTACTS_DEFAULTS.hydrogenScale;
   const cap = options.maxPerFrame ?? CONTACTS_DEFAULTS.maxPerFrame;
   const n = frame.species.length;
   const out: ContactsSample = { atoms: n, min: null, pairs: {}, violations: [], violationCount: 0, limits: {}, bad: null, missing: null };
@@ -141,7 +166,7 @@ export function contactsFrame(frame: Frame, _index: number, options: ContactsFra
   }
   const { names, group } = speciesGroups(frame.species);
   try {
-    out.limits = limitsFor(names, scale, options.pairLimits);
+    out.limits = limitsFor(names, scale, hydrogenScale, options.pairLimits);
   } catch (err) {
     out.missing = (err as Error).message;
     return out;
@@ -195,6 +220,11 @@ export interface ContactsFigures {
   /** Where each pair minimum is. */
   pair_min_at: Record<string, { frame: number; i: number; j: number }>;
   violations: { frame: number; i: number; j: number; species: [string, string]; distance: number; limit: number }[];
+  /**
+   * The most severe violation of all frames: smallest distance / limit (ties: earliest frame, then lowest i, j); null
+   * without violations (or when no violation is kept, maxPerFrame 0). This, not min_distance, is the pair a failure names.
+   */
+  worst_violation: { frame: number; i: number; j: number; species: [string, string]; distance: number; limit: number; ratio: number } | null;
   /** All violations, including those not listed. */
   violation_count: number;
   violation_frames: number;
@@ -202,6 +232,8 @@ export interface ContactsFigures {
   /** Limits used per species pair, Å. */
   limits: Record<string, number>;
   scale: number;
+  /** Pairs with hydrogen use max(scale, hydrogen_scale). */
+  hydrogen_scale: number;
   first_bad_frame: number | null;
   files: FileSpan[];
 }
@@ -209,6 +241,7 @@ export interface ContactsFigures {
 /** Combine per-frame contacts (global frame order) into the verdict. Throws GateInputError for unusable input. */
 export function summarizeContacts(samples: ContactsSample[], options: ContactsOptions = {}, files: FileSpan[] = []): GateResult<ContactsFigures> {
   const scale = options.scale ?? CONTACTS_DEFAULTS.scale;
+  const hydrogenScale = options.hydrogenScale ?? CONTACTS_DEFAULTS.hydrogenScale;
   const maxTotal = options.maxViolations ?? CONTACTS_DEFAULTS.maxViolations;
   const fig: ContactsFigures = {
     frames: samples.length,
@@ -217,11 +250,13 @@ export function summarizeContacts(samples: ContactsSample[], options: ContactsOp
     pair_min: {},
     pair_min_at: {},
     violations: [],
+    worst_violation: null,
     violation_count: 0,
     violation_frames: 0,
     first_violation_frame: null,
     limits: {},
     scale,
+    hydrogen_scale: hydrogenScale,
     first_bad_frame: null,
     files,
   };
@@ -256,6 +291,13 @@ export function summarizeContacts(samples: ContactsSample[], options: ContactsOp
       fig.violation_count += s.violationCount;
       fig.violation_frames++;
       fig.first_violation_frame ??= f;
+      // a frame's violations come most severe first; strictly smaller keeps the earliest frame on ties
+      const v = s.violations[0];
+      if (v !== undefined) {
+        const ratio = v.distance / v.limit;
+        if (fig.worst_violation === null || ratio < fig.worst_violation.ratio)
+          fig.worst_violation = { frame: f, i: v.i, j: v.j, species: v.species, distance: v.distance, limit: v.limit, ratio };
+      }
       for (const v of s.violations) {
         if (fig.violations.length >= maxTotal) break;
         fig.violations.push({ frame: f, i: v.i, j: v.j, species: v.species, distance: v.distance, limit: v.limit });
@@ -274,7 +316,13 @@ export function summarizeContacts(samples: ContactsSample[], options: ContactsOp
     );
     if (fig.violations.length < fig.violation_count) j.note(`${fig.violations.length} of ${fig.violation_count} violations are listed`);
   }
-  if (fig.min_distance) {
+  if (fig.worst_violation) {
+    // a failure names its violating pair, never the closest pair of another species pair that is within its limit
+    const w = fig.worst_violation;
+    j.note(
+      `most severe violation: ${fmt(w.distance)} Å between atoms ${w.i} and ${w.j} (${w.species.join('-')}) in ${frameLabel(w.frame, files)}, limit ${fmt(w.limit)} Å (${fmt(w.ratio, 3)} of the limit)`,
+    );
+  } else if (fig.min_distance) {
     const m = fig.min_distance;
     const key = pairKey(m.species[0], m.species[1]);
     const verb = j.verdict === 'pass' ? 'every pair is at or beyond its limit; closest' : 'closest';
@@ -287,17 +335,20 @@ export function summarizeContacts(samples: ContactsSample[], options: ContactsOp
 export async function checkContacts(paths: string[], options: ContactsOptions = {}): Promise<GateResult<ContactsFigures>> {
   const scale = options.scale ?? CONTACTS_DEFAULTS.scale;
   if (!(Number.isFinite(scale) && scale > 0)) throw new GateInputError(`scale must be a positive number, found ${scale}`);
+  const hydrogenScale = options.hydrogenScale ?? CONTACTS_DEFAULTS.hydrogenScale;
+  if (!(Number.isFinite(hydrogenScale) && hydrogenScale > 0))
+    throw new GateInputError(`hydrogen scale must be a positive number, found ${hydrogenScale}`);
   const pairLimits = normalisePairLimits(options.pairLimits);
   const { results, files } = await mapFiles<ContactsSample>(
     paths,
     {
       module: import.meta.url,
       fn: 'contactsFrame',
-      options: { scale, pairLimits, maxPerFrame: options.maxPerFrame ?? CONTACTS_DEFAULTS.maxPerFrame },
+      options: { scale, hydrogenScale, pairLimits, maxPerFrame: options.maxPerFrame ?? CONTACTS_DEFAULTS.maxPerFrame },
       columns: [],
       usesIndex: false,
     },
     options.workers ?? defaultWorkers(),
   );
-  return summarizeContacts(results, { ...options, scale }, files);
+  return summarizeContacts(results, { ...options, scale, hydrogenScale }, files);
 }

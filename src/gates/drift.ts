@@ -2,8 +2,11 @@
  * drift: is total energy conserved along a molecular dynamics run?
  *
  * Total energy per atom against time, from extended XYZ info (`total_energy`, or `energy` plus the kinetic energy
- * from `velocities` and masses) or from a thermo table. Figures: least-squares slope (meV/atom/ps), standard
- * deviation (meV/atom), largest |E(t) - E(0)| (meV/atom), mean temperature from the velocities by equipartition.
+ * from `velocities` and masses, or from ASE's `momenta`) or from a thermo table. Figures: least-squares slope
+ * (meV/atom/ps) with its ordinary least-squares standard error, standard deviation (meV/atom), largest
+ * |E(t) - E(0)| (meV/atom), mean temperature from the velocities by equipartition, how many frames over how long.
+ * Verdict: too few frames or too short a run fails (no slope can be trusted); |slope| above the fail limit fails;
+ * above the warn limit it warns only when it is also more than 2 standard errors from zero.
  * A run that blew up (non-finite energy, positions, velocities or forces) fails, naming the first bad frame;
  * figures then cover the frames before it.
  *
@@ -11,7 +14,7 @@
  * thermostat's conserved quantity (e.g. a thermo column holding it) or read only the blow-up part of the verdict.
  */
 import { massesOf } from '../atoms/elements.js';
-import { kineticEnergy, temperatureFromKinetic } from '../atoms/units.js';
+import { kineticEnergy, momentaToVelocities, temperatureFromKinetic, ASE_TIME_UNIT_FS } from '../atoms/units.js';
 import { open } from 'node:fs/promises';
 import type { Frame } from '../atoms/frame.js';
 import { firstNonFinite, frameLabel, infoNumber, mapFiles, defaultWorkers } from './frames.js';
@@ -19,6 +22,7 @@ import { findColumn, readThermoTable, type ThermoTable } from './thermo.js';
 import { GateInputError, type FileSpan, type GateResult } from './types.js';
 import { Judgement, fmt } from './verdict.js';
 import { DRIFT_DEFAULTS } from './defaults.js';
+import { DRIFT_LIMIT_NAMES, resolveLimits, type DriftLimitName, type DriftLimits, type LimitInput } from './limits.js';
 
 export { DRIFT_DEFAULTS };
 
@@ -28,7 +32,10 @@ export interface DriftFrameOptions {
   totalKey?: string;
   /** Info key of the potential energy in eV (default energy). */
   energyKey?: string;
-  /** Per-atom array of velocities in Å/fs (default velocities). */
+  /**
+   * Per-atom array of velocities in Å/fs (default velocities). `momenta` (ASE's per-atom momenta, u·Å per ASE time
+   * unit) is converted to velocities; with the default key a frame without velocities but with momenta uses them.
+   */
   velocitiesKey?: string;
   /** Per-atom array of masses in amu; standard atomic weights when absent (default masses). */
   massesKey?: string;
@@ -47,12 +54,16 @@ export interface DriftFrameOptions {
 export interface DriftOptions extends DriftFrameOptions {
   /** MD time step in fs: time = step x timestep, or frame index x timestep when frames carry no step number. */
   timestep?: number;
-  /** Degrees of freedom for the temperature (default 3N - 3 when any axis is periodic, else 3N). */
+  /** Degrees of freedom for the temperature (default 3N - 3: centre-of-mass motion removed; see defaultDof). */
   dof?: number;
-  slopeWarn?: number;
-  slopeFail?: number;
-  excursionWarn?: number;
-  excursionFail?: number;
+  /** Warn/fail limits by their table names (max_drift, max_excursion); a number is the fail limit. */
+  limits?: Partial<Record<DriftLimitName, LimitInput>>;
+  /** Names the limit keys in messages about bad limits (default "max_drift.warn"). */
+  limitName?: (name: DriftLimitName, which: 'warn' | 'fail') => string;
+  /** Fewer usable frames than this fails (default 10, at least 3). */
+  minFrames?: number;
+  /** A run shorter than this, ps, fails (default 1). */
+  minSpan?: number;
   /** Input kind; auto decides by file extension (.csv .tsv .dat .txt .log .thermo are tables) or first line. */
   format?: 'auto' | 'xyz' | 'table';
   /** Thermo tables: number of atoms (tables do not say). Give 1 when the energy column is already per atom. */
@@ -77,6 +88,8 @@ export interface DriftSample {
   source: 'total_energy' | 'energy+kinetic' | null;
   /** Kinetic energy in eV from the velocities, null without velocities. */
   kinetic: number | null;
+  /** Where the velocities came from: the per-atom key, and whether it held ASE momenta; null without. */
+  velocities: { key: string; momenta: boolean } | null;
   /** Temperature from the info, K (used only without velocities). */
   temperature: number | null;
   /** Time in fs from the info, or null. */
@@ -89,10 +102,24 @@ export interface DriftSample {
   missing: string | null;
 }
 
-/** Default degrees of freedom: 3N - 3 for a periodic system (total momentum fixed), 3N otherwise. */
-export function defaultDof(atoms: number, periodic: boolean): number {
-  return periodic ? 3 * atoms - 3 : 3 * atoms;
+/**
+ * Default degrees of freedom for the temperature: 3N - 3, for periodic cells and clusters alike, since MD programs
+ * remove the centre-of-mass motion (ASE's Stationary, LAMMPS' velocity ... mom yes) and total momentum is
+ * conserved from then on. A cluster whose rotation is also removed has 3N - 6 (3N - 5 if linear): give it.
+ * A single atom keeps 3.
+ */
+export function defaultDof(atoms: number, _periodic = false): number {
+  return defaultDofRule(atoms).dof;
 }
+
+/** defaultDof with the words of its rule (the drift figure `dof_rule`). */
+export function defaultDofRule(atoms: number): { dof: number; rule: string } {
+  if (atoms <= 1) return { dof: 3 * atoms, rule: '3N (a single atom)' };
+  return { dof: 3 * atoms - 3, rule: '3N - 3 (centre-of-mass motion removed)' };
+}
+
+/** A mean temperature above this (K) from velocities is almost surely a unit error. */
+export const UNPHYSICAL_TEMPERATURE_K = 1e5;
 
 function realColumn(frame: Frame, key: string, width: number): Float64Array | undefined | 'wrong' {
   const col = frame.arrays.get(key);
@@ -122,6 +149,7 @@ export function driftFrame(frame: Frame, _index: number, options: DriftFrameOpti
     total: null,
     source: null,
     kinetic: null,
+    velocities: null,
     temperature: infoNumber(frame.info, o.temperatureKey) ?? null,
     time: infoNumber(frame.info, o.timeKey) ?? null,
     step: infoNumber(frame.info, o.stepKey) ?? null,
@@ -137,12 +165,16 @@ export function driftFrame(frame: Frame, _index: number, options: DriftFrameOpti
   if (badAtom('positions', frame.positions, 3)) return s;
   const forces = realColumn(frame, o.forcesKey, 3);
   if (forces instanceof Float64Array && badAtom(o.forcesKey, forces, 3)) return s;
-  const vel = realColumn(frame, o.velocitiesKey, 3);
+  let velKey = o.velocitiesKey;
+  // ASE writes momenta (u Å per ASE time unit), not velocities: use them when asked, or when there are no velocities.
+  if (velKey === 'velocities' && !frame.arrays.has(velKey) && frame.arrays.has('momenta')) velKey = 'momenta';
+  const momenta = velKey === 'momenta';
+  const vel = realColumn(frame, velKey, 3);
   if (vel === 'wrong') {
-    s.missing = `per-atom '${o.velocitiesKey}' is not a real column of width 3`;
+    s.missing = `per-atom '${velKey}' is not a real column of width 3`;
     return s;
   }
-  if (vel && badAtom(o.velocitiesKey, vel, 3)) return s;
+  if (vel && badAtom(velKey, vel, 3)) return s;
   if (vel) {
     const masses = realColumn(frame, o.massesKey, 1);
     let m: ArrayLike<number>;
@@ -155,7 +187,8 @@ export function driftFrame(frame: Frame, _index: number, options: DriftFrameOpti
         return s;
       }
     }
-    s.kinetic = kineticEnergy(m, vel);
+    s.kinetic = kineticEnergy(m, momenta ? momentaToVelocities(m, vel) : vel);
+    s.velocities = { key: velKey, momenta };
   }
   const total = infoNumber(frame.info, o.totalKey);
   const pot = infoNumber(frame.info, o.energyKey);
@@ -173,7 +206,7 @@ export function driftFrame(frame: Frame, _index: number, options: DriftFrameOpti
           ? pot === undefined
             ? `no '${o.energyKey}' in the frame info`
             : `no per-atom '${o.velocitiesKey}' to add the kinetic energy`
-          : `neither '${o.totalKey}' nor '${o.energyKey}' with per-atom '${o.velocitiesKey}'`;
+          : `neither '${o.totalKey}' nor '${o.energyKey}' with per-atom '${o.velocitiesKey}'${o.velocitiesKey === 'velocities' ? " (or ASE's 'momenta')" : ''}`;
     return s;
   }
   if (!Number.isFinite(s.total)) s.bad = `non-finite total energy (${s.total})`;
@@ -184,6 +217,11 @@ export interface DriftFigures {
   frames: number;
   atoms: number;
   slope_meV_per_atom_per_ps: number | null;
+  /**
+   * Ordinary least-squares standard error of the slope (needs 3 frames). MD energies are autocorrelated, so this
+   * is a lower bound on the true uncertainty.
+   */
+  slope_se_meV_per_atom_per_ps: number | null;
   std_meV_per_atom: number | null;
   max_excursion_meV_per_atom: number | null;
   mean_temperature_K: number | null;
@@ -194,19 +232,30 @@ export interface DriftFigures {
   initial_energy_eV_per_atom: number | null;
   energy_source: string | null;
   time_source: string | null;
-  degrees_of_freedom: number | null;
+  /** Per-atom key the velocities came from ("momenta": ASE momenta converted), null without velocities. */
+  velocities_source: string | null;
+  /** Degrees of freedom of the temperature and the rule that gave them, null without velocities. */
+  dof: number | null;
+  dof_rule: string | null;
   files: FileSpan[];
-  thresholds: { slope_warn: number; slope_fail: number; excursion_warn: number; excursion_fail: number };
+  /** The limits in force (limits.ts names; null = not checked). */
+  limits: DriftLimits;
+  /** Fewer usable frames, or a shorter run (ps), fails. */
+  sample_limits: { min_frames: number; min_span_ps: number };
 }
 
-/** Least-squares slope, population standard deviation and largest excursion from the first value. */
+/**
+ * Least-squares slope with its ordinary least-squares standard error (sqrt(SSR / (n - 2) / Σ(t - t̄)²), n >= 3),
+ * population standard deviation and largest excursion from the first value.
+ */
 export function seriesFigures(timeFs: ArrayLike<number>, ePerAtomEv: ArrayLike<number>): {
   slope_meV_per_atom_per_ps: number | null;
+  slope_se_meV_per_atom_per_ps: number | null;
   std_meV_per_atom: number | null;
   max_excursion_meV_per_atom: number | null;
 } {
   const n = Math.min(timeFs.length, ePerAtomEv.length);
-  if (n === 0) return { slope_meV_per_atom_per_ps: null, std_meV_per_atom: null, max_excursion_meV_per_atom: null };
+  if (n === 0) return { slope_meV_per_atom_per_ps: null, slope_se_meV_per_atom_per_ps: null, std_meV_per_atom: null, max_excursion_meV_per_atom: null };
   let tm = 0;
   let em = 0;
   for (let k = 0; k < n; k++) {
@@ -229,8 +278,22 @@ export function seriesFigures(timeFs: ArrayLike<number>, ePerAtomEv: ArrayLike<n
     exc = Math.max(exc, Math.abs(ePerAtomEv[k] - e0));
   }
   // eV/atom/fs -> meV/atom/ps: x 1000 (meV per eV) x 1000 (fs per ps)
-  const slope = n >= 2 && stt > 0 ? (ste / stt) * 1e6 : null;
-  return { slope_meV_per_atom_per_ps: slope, std_meV_per_atom: Math.sqrt(see / n) * 1e3, max_excursion_meV_per_atom: exc * 1e3 };
+  const b = n >= 2 && stt > 0 ? ste / stt : null;
+  let se: number | null = null;
+  if (b !== null && n >= 3) {
+    let ssr = 0;
+    for (let k = 0; k < n; k++) {
+      const r = ePerAtomEv[k] - em - b * (timeFs[k] - tm);
+      ssr += r * r;
+    }
+    se = Math.sqrt(ssr / (n - 2) / stt) * 1e6;
+  }
+  return {
+    slope_meV_per_atom_per_ps: b === null ? null : b * 1e6,
+    slope_se_meV_per_atom_per_ps: se,
+    std_meV_per_atom: Math.sqrt(see / n) * 1e3,
+    max_excursion_meV_per_atom: exc * 1e3,
+  };
 }
 
 /** One point of the series the figures are made from, whatever the source. */
@@ -247,17 +310,26 @@ interface SeriesInput {
   firstBad: { index: number; what: string } | null;
   energySource: string | null;
   timeSource: string | null;
-  dof: number | null;
+  velocitiesSource: string | null;
+  dof: { dof: number; rule: string } | null;
+  /** Where the temperature came from when it came from velocities (for the unit-error message). */
   files: FileSpan[];
 }
 
+/** Limits and sample sizes in force, checked (bad values are bad input). */
+function driftSettings(options: DriftOptions): { limits: DriftLimits; minFrames: number; minSpan: number } {
+  const limits = resolveLimits(DRIFT_LIMIT_NAMES, options.limits, options.limitName);
+  const minFrames = options.minFrames ?? DRIFT_DEFAULTS.minFrames;
+  const minSpan = options.minSpan ?? DRIFT_DEFAULTS.minSpan;
+  if (!(Number.isInteger(minFrames) && minFrames >= 3))
+    throw new GateInputError(`minimum number of frames (drift_min_frames, --drift-min-frames): expected a whole number of at least 3 (a slope and its standard error need 3), found ${minFrames}`);
+  if (!(Number.isFinite(minSpan) && minSpan >= 0))
+    throw new GateInputError(`minimum run length (drift_min_span, --drift-min-span): expected a number of ps of at least 0, found ${minSpan}`);
+  return { limits, minFrames, minSpan };
+}
+
 function judge(input: SeriesInput, options: DriftOptions): GateResult<DriftFigures> {
-  const th = {
-    slope_warn: options.slopeWarn ?? DRIFT_DEFAULTS.slopeWarn,
-    slope_fail: options.slopeFail ?? DRIFT_DEFAULTS.slopeFail,
-    excursion_warn: options.excursionWarn ?? DRIFT_DEFAULTS.excursionWarn,
-    excursion_fail: options.excursionFail ?? DRIFT_DEFAULTS.excursionFail,
-  };
+  const { limits, minFrames, minSpan } = driftSettings(options);
   const { points } = input;
   const t = Float64Array.from(points, (p) => p.timeFs);
   const e = Float64Array.from(points, (p) => p.totalEv / input.atoms);
@@ -274,9 +346,12 @@ function judge(input: SeriesInput, options: DriftOptions): GateResult<DriftFigur
     initial_energy_eV_per_atom: points.length ? e[0] : null,
     energy_source: input.energySource,
     time_source: input.timeSource,
-    degrees_of_freedom: input.dof,
+    velocities_source: input.velocitiesSource,
+    dof: input.dof?.dof ?? null,
+    dof_rule: input.dof?.rule ?? null,
     files: input.files,
-    thresholds: th,
+    limits,
+    sample_limits: { min_frames: minFrames, min_span_ps: minSpan },
   };
   const j = new Judgement();
   if (input.frames === 0) j.fail('no frames to check');
@@ -284,20 +359,42 @@ function judge(input: SeriesInput, options: DriftOptions): GateResult<DriftFigur
     j.fail(
       `the run blew up: ${frameLabel(input.firstBad.index, input.files)} has ${input.firstBad.what}; figures cover the ${points.length} frame(s) before it`,
     );
-  if (input.frames > 0 && points.length < 2) j.warn('fewer than two usable frames: no slope');
-  else if (stats.slope_meV_per_atom_per_ps === null && points.length >= 2) j.warn('all frames have the same time: no slope');
+  const span = figures.duration_ps ?? 0;
+  const fewFrames = points.length < minFrames;
+  // A run of exactly the minimum length may carry rounding in its times.
+  const short = span < minSpan * (1 - 1e-9);
+  if (input.frames > 0 && !input.firstBad && (fewFrames || short))
+    j.fail(
+      `${points.length} usable frame${points.length === 1 ? '' : 's'} over ${fmt(span)} ps: too ${fewFrames ? 'few' : 'short'} to judge the drift (at least ${minFrames} frames over at least ${fmt(minSpan)} ps needed)`,
+    );
+  else if (stats.slope_meV_per_atom_per_ps === null && points.length >= 2) j.fail('all frames have the same time: no slope');
   const slope = stats.slope_meV_per_atom_per_ps;
-  if (slope !== null)
-    j.limit(Math.abs(slope), th.slope_warn, th.slope_fail, (kind, lim) =>
-      `energy drifts by ${fmt(slope)} meV/atom/ps (${kind} limit ${fmt(lim)} in magnitude)`,
-    );
+  const se = stats.slope_se_meV_per_atom_per_ps;
+  const pm = (x: number) => `${fmt(x)}${se !== null ? ` ± ${fmt(se, 2)}` : ''} meV/atom/ps`;
+  if (slope !== null && !(fewFrames || short)) {
+    const a = Math.abs(slope);
+    const { warn, fail } = limits.max_drift;
+    if (fail !== null && a > fail) j.fail(`energy drifts by ${pm(slope)}: above the fail limit ${fmt(fail)} meV/atom/ps in magnitude`);
+    else if (warn !== null && a > warn) {
+      if (se !== null && a <= 2 * se)
+        j.note(`energy drift ${pm(slope)} is above the warn limit ${fmt(warn)} meV/atom/ps but within 2 standard errors of zero: not distinguishable from no drift`);
+      else j.warn(`energy drifts by ${pm(slope)}: above the warn limit ${fmt(warn)} meV/atom/ps in magnitude and more than 2 standard errors from zero`);
+    }
+  }
   const exc = stats.max_excursion_meV_per_atom;
+  const xl = limits.max_excursion;
   if (exc !== null && points.length >= 2)
-    j.limit(exc, th.excursion_warn, th.excursion_fail, (kind, lim) =>
-      `total energy strays up to ${fmt(exc)} meV/atom from its start (${kind} limit ${fmt(lim)})`,
+    j.limit(exc, xl.warn ?? undefined, xl.fail ?? undefined, (kind, lim) =>
+      `total energy strays up to ${fmt(exc)} meV/atom from its start (${kind} limit ${fmt(lim)} meV/atom)`,
     );
-  if (j.verdict === 'pass' && slope !== null)
-    j.note(`energy drift ${fmt(slope)} meV/atom/ps over ${fmt(figures.duration_ps ?? 0)} ps is within ${fmt(th.slope_warn)}`);
+  const T = figures.mean_temperature_K;
+  if (T !== null && input.velocitiesSource !== null && T > UNPHYSICAL_TEMPERATURE_K)
+    j.fail(
+      `mean temperature ${fmt(T)} K from per-atom '${input.velocitiesSource}' is not physical (above ${fmt(UNPHYSICAL_TEMPERATURE_K)} K): the velocities are almost surely in another unit than Å/fs` +
+        (input.velocitiesSource === 'momenta' ? '' : ` (ASE writes momenta in u·Å per its time unit of ${fmt(ASE_TIME_UNIT_FS, 6)} fs: name them 'momenta' to have them converted)`),
+    );
+  if (j.verdict === 'pass' && slope !== null && !(fewFrames || short))
+    j.note(`energy drift ${pm(slope)} over ${fmt(span)} ps (${points.length} frames)`);
   return { gate: 'drift', verdict: j.verdict, reasons: j.reasons, figures };
 }
 
@@ -306,8 +403,9 @@ export function summarizeDrift(samples: DriftSample[], options: DriftOptions = {
   const points: DriftPoint[] = [];
   let firstBad: SeriesInput['firstBad'] = null;
   const atoms = samples.length ? samples[0].atoms : 0;
-  const periodic = samples.length ? samples[0].periodic : false;
-  const dof = options.dof ?? defaultDof(atoms, periodic);
+  const dofFor = options.dof !== undefined ? { dof: options.dof, rule: 'given' } : defaultDofRule(atoms);
+  const dof = dofFor.dof;
+  driftSettings(options);
   if (options.dof !== undefined && !(options.dof > 0)) throw new GateInputError(`degrees of freedom must be positive, found ${options.dof}`);
   if (options.timestep !== undefined && !(options.timestep > 0)) throw new GateInputError(`time step must be positive, found ${options.timestep}`);
   if (samples.length && atoms === 0) throw new GateInputError(`${frameLabel(0, files)} has no atoms`);
@@ -342,7 +440,7 @@ export function summarizeDrift(samples: DriftSample[], options: DriftOptions = {
     points.push({ timeFs: time, totalEv: s.total as number, temperature });
   }
   const timeSource = hasTime ? `info '${timeKey}'` : hasStep ? `info '${options.stepKey ?? 'step'}' x ${options.timestep} fs` : `frame index x ${options.timestep} fs`;
-  const anyVel = samples.some((s) => s.kinetic !== null);
+  const withVel = samples.find((s) => s.velocities !== null);
   return judge(
     {
       frames: samples.length,
@@ -351,7 +449,8 @@ export function summarizeDrift(samples: DriftSample[], options: DriftOptions = {
       firstBad,
       energySource: source,
       timeSource: samples.length ? timeSource : null,
-      dof: anyVel ? dof : null,
+      velocitiesSource: withVel ? withVel.velocities!.key : null,
+      dof: withVel ? dofFor : null,
       files,
     },
     options,
@@ -365,6 +464,7 @@ const TEMPERATURE_NAMES = ['temperature', 'temp', 't_k', 'temp_k'];
 
 /** The drift verdict from thermo tables (rows in file order, tables concatenated). */
 export function summarizeThermo(tables: ThermoTable[], options: DriftOptions = {}): GateResult<DriftFigures> {
+  driftSettings(options);
   const atoms = options.atoms;
   if (atoms === undefined) throw new GateInputError(`${tables[0]?.path ?? 'thermo table'}: a thermo table does not say how many atoms it describes; give the atom count (1 if the energy column is already per atom)`);
   if (!(Number.isInteger(atoms) && atoms > 0)) throw new GateInputError(`atom count must be a positive integer, found ${atoms}`);
@@ -414,7 +514,7 @@ export function summarizeThermo(tables: ThermoTable[], options: DriftOptions = {
     frames += rows;
   }
   return judge(
-    { frames, atoms, points, firstBad, energySource, timeSource, dof: null, files },
+    { frames, atoms, points, firstBad, energySource, timeSource, velocitiesSource: null, dof: null, files },
     options,
   );
 }
@@ -444,6 +544,7 @@ export async function looksLikeTable(path: string): Promise<boolean> {
 
 /** The drift gate over extended XYZ files or thermo tables (concatenated in order as one run). */
 export async function checkDrift(paths: string[], options: DriftOptions = {}): Promise<GateResult<DriftFigures>> {
+  driftSettings(options); // bad limits before reading any file
   let table: boolean;
   if (options.format === 'table') table = true;
   else if (options.format === 'xyz') table = false;
@@ -476,7 +577,7 @@ export async function checkDrift(paths: string[], options: DriftOptions = {}): P
       module: import.meta.url,
       fn: 'driftFrame',
       options: frameOptions,
-      columns: [o.velocitiesKey ?? 'velocities', o.massesKey ?? 'masses', o.forcesKey ?? 'forces'],
+      columns: [o.velocitiesKey ?? 'velocities', 'momenta', o.massesKey ?? 'masses', o.forcesKey ?? 'forces'],
     },
     o.workers ?? defaultWorkers(),
   );

@@ -15,6 +15,11 @@ export const MAX_ROWS = 20;
 
 const n = (x: number | null | undefined, digits = 4): string => (x === null || x === undefined ? 'n/a' : fmt(x, digits));
 const fixed = (x: number, d: number): string => (Number.isFinite(x) ? x.toFixed(d) : String(x));
+/** "(warn above 5, fail above 10)" for a limit of limits.ts; unchecked parts left out. */
+const limitText = (l: { warn: number | null; fail: number | null }, tail = ''): string => {
+  const parts = [l.warn !== null ? `warn above ${fmt(l.warn)}` : '', l.fail !== null ? `fail above ${fmt(l.fail)}` : ''].filter(Boolean);
+  return parts.length ? ` (${parts.join(', ')}${tail})` : ' (not checked)';
+};
 
 function header(r: GateResult<unknown>): string {
   return `${r.gate}: ${r.verdict.toUpperCase()}\n`;
@@ -38,8 +43,11 @@ export function formatContacts(r: GateResult<ContactsFigures>): string {
     ['input', filesLine(f.files)],
     ['frames', `${f.frames}${f.atoms !== null ? ` (${f.atoms} atoms in the first)` : ''}`],
     ['closest pair', m ? `${fixed(m.value, 4)} Å, atoms ${m.i} and ${m.j} (${m.species.join('-')}), ${frameLabel(m.frame, f.files)}` : 'none'],
-    ['limit', `${fmt(f.scale)} x sum of covalent radii (Cordero et al. 2008) unless given per pair`],
+    ['limit', `${fmt(f.scale)} x sum of covalent radii (Cordero et al. 2008), ${fmt(Math.max(f.scale, f.hydrogen_scale))} x for pairs with H, unless given per pair`],
     ['violations', `${f.violation_count}${f.violation_count ? ` in ${f.violation_frames} frame(s), first in ${frameLabel(f.first_violation_frame!, f.files)}` : ''}`],
+    ...(f.worst_violation
+      ? [['most severe', `${fixed(f.worst_violation.distance, 4)} Å, atoms ${f.worst_violation.i} and ${f.worst_violation.j} (${f.worst_violation.species.join('-')}), ${frameLabel(f.worst_violation.frame, f.files)}, limit ${fixed(f.worst_violation.limit, 4)} Å`] as [string, string]]
+      : []),
   ]);
   const keys = Object.keys(f.pair_min).sort();
   if (keys.length) {
@@ -63,22 +71,22 @@ export function formatContacts(r: GateResult<ContactsFigures>): string {
 
 export function formatDrift(r: GateResult<DriftFigures>): string {
   const f = r.figures;
-  const t = f.thresholds;
+  const t = f.limits;
   return (
     header(r) +
     renderPairs([
       ['input', filesLine(f.files)],
-      ['frames', `${f.frames}${f.first_bad_frame !== null ? ` (figures over the first ${f.frames_used}; ${frameLabel(f.first_bad_frame, f.files)} is bad)` : ''}`],
+      ['frames', `${f.frames}${f.first_bad_frame !== null ? ` (figures over the first ${f.frames_used}; ${frameLabel(f.first_bad_frame, f.files)} is bad)` : ''} (at least ${f.sample_limits.min_frames} over ${fmt(f.sample_limits.min_span_ps)} ps needed)`],
       ['atoms', String(f.atoms)],
       ['energy from', f.energy_source ?? 'n/a'],
       ['time from', f.time_source ?? 'n/a'],
       ['duration', `${n(f.duration_ps)} ps`],
-      ['slope', `${n(f.slope_meV_per_atom_per_ps)} meV/atom/ps (warn above ${fmt(t.slope_warn)}, fail above ${fmt(t.slope_fail)} in magnitude)`],
+      ['slope', `${n(f.slope_meV_per_atom_per_ps)} ± ${n(f.slope_se_meV_per_atom_per_ps, 2)} meV/atom/ps${limitText(t.max_drift, ' in magnitude; warn only beyond 2 standard errors')}`],
       ['std', `${n(f.std_meV_per_atom)} meV/atom`],
-      ['max |E(t)-E(0)|', `${n(f.max_excursion_meV_per_atom)} meV/atom (warn above ${fmt(t.excursion_warn)}, fail above ${fmt(t.excursion_fail)})`],
+      ['max |E(t)-E(0)|', `${n(f.max_excursion_meV_per_atom)} meV/atom${limitText(t.max_excursion)}`],
       [
         'mean temperature',
-        f.mean_temperature_K === null ? 'n/a' : `${fmt(f.mean_temperature_K, 5)} K${f.degrees_of_freedom !== null ? ` (${f.degrees_of_freedom} degrees of freedom)` : ''}`,
+        f.mean_temperature_K === null ? 'n/a' : `${fmt(f.mean_temperature_K, 5)} K${f.dof !== null ? ` (${f.dof} degrees of freedom: ${f.dof_rule}; velocities from '${f.velocities_source}')` : ''}`,
       ],
     ]) +
     reasons(r)
@@ -94,13 +102,20 @@ export function formatErrors(r: GateResult<ErrorsFigures>): string {
     renderPairs([
       ['reference', f.files.reference],
       ['predicted', f.files.predicted],
-      ['frames', String(f.frames)],
-      ['energy MAE', `${n(f.energy_mae_meV_per_atom)} meV/atom`],
-      ['energy RMSE', `${n(f.energy_rmse_meV_per_atom)} meV/atom (warn above ${fmt(f.thresholds.energy_rmse_warn)}, fail above ${fmt(f.thresholds.energy_rmse_fail)})`],
+      ['frames', `${f.frames}${f.judged_frames !== f.frames ? ` (${f.judged_frames} judged)` : ''}, ${f.atoms} atoms, ${f.force_components} force components`],
+      ['energy MAE', `${n(f.energy_mae_meV_per_atom)} meV/atom${limitText(f.limits.energy_mae)}`],
+      ['energy RMSE', `${n(f.energy_rmse_meV_per_atom)} meV/atom${limitText(f.limits.energy_rmse)}`],
       ['largest energy error', me ? `${fmt(me.value_meV_per_atom)} meV/atom in frame ${me.frame}` : 'n/a'],
-      ['force MAE', `${n(f.force_mae_meV_per_A)} meV/Å`],
-      ['force RMSE', `${n(f.force_rmse_meV_per_A)} meV/Å (warn above ${fmt(f.thresholds.force_rmse_warn)}, fail above ${fmt(f.thresholds.force_rmse_fail)})`],
+      ['force MAE', `${n(f.force_mae_meV_per_A)} meV/Å${limitText(f.limits.force_mae, ', overall and per element')}`],
+      ['force RMSE', `${n(f.force_rmse_meV_per_A)} meV/Å${limitText(f.limits.force_rmse, ', overall and per element')}`],
       ['largest force error', mx ? `${fmt(mx.value_meV_per_A)} meV/Å, frame ${mx.frame}, atom ${mx.atom} (${mx.species}), ${mx.component}` : 'n/a'],
+      ...(f.stress_frames
+        ? ([
+            ['stress MAE', `${n(f.stress_mae_GPa)} GPa (${f.stress_frames} frames, 6 Voigt components)`],
+            ['stress RMSE', `${n(f.stress_rmse_GPa)} GPa${limitText(f.limits.stress_rmse)}`],
+            ['pressure error', `MAE ${n(f.pressure_mae_GPa)} GPa, RMSE ${n(f.pressure_rmse_GPa)} GPa, mean ${n(f.pressure_mean_error_GPa)} GPa`],
+          ] as [string, string][])
+        : []),
     ]);
   const els = Object.keys(f.per_element);
   if (els.length) {
@@ -129,6 +144,9 @@ export function formatCommittee(r: GateResult<CommitteeFigures>): string {
       ['bands', `confident ${f.bands.confident}, informative ${f.bands.informative}, runaway ${f.bands.runaway}`],
       ['largest spread', top ? `${fmt(top[0])} eV/Å in ${frameLabel(top[1], f.files)}` : 'n/a'],
       ['first runaway', f.first_runaway_frame === null ? 'none' : frameLabel(f.first_runaway_frame, f.files)],
+      ...(f.incomplete_frames
+        ? [['incomplete', `${f.incomplete_frames} frame(s), first ${frameLabel(f.first_incomplete_frame!, f.files)}: ${f.incomplete[0] ? [...f.incomplete[0].missing.map((x) => `${x} missing`), ...f.incomplete[0].extra.map((x) => `${x} unexpected`)].join(', ') : ''}`] as [string, string]]
+        : []),
     ]);
   if (f.frames > 0 && f.frames <= MAX_ROWS) {
     out += '\n';

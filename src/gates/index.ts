@@ -27,6 +27,8 @@ export {
   summarizeThermo,
   seriesFigures,
   defaultDof,
+  defaultDofRule,
+  UNPHYSICAL_TEMPERATURE_K,
   looksLikeTable,
   DRIFT_DEFAULTS,
   type DriftOptions,
@@ -58,6 +60,20 @@ export {
   type CommitteeSample,
   type CommitteeFigures,
 } from './committee.js';
+export {
+  LIMITS,
+  SAMPLE_LIMITS,
+  ERRORS_LIMIT_NAMES,
+  DRIFT_LIMIT_NAMES,
+  resolveLimit,
+  resolveLimits,
+  defaultLimits,
+  type Limit,
+  type LimitInput,
+  type LimitName,
+  type ErrorsLimits,
+  type DriftLimits,
+} from './limits.js';
 export { readThermoTable, ThermoError, type ThermoTable } from './thermo.js';
 export { frameLabel, defaultWorkers } from './frames.js';
 export { formatResult, resultJson } from './format.js';

@@ -4,6 +4,7 @@
  */
 import { formatResult, resultJson } from './format.js';
 import type { GateResult } from './types.js';
+import { systemErrorMessage } from '../cli/errors.js';
 
 export interface Output {
   stdout: (text: string) => void;
@@ -17,11 +18,8 @@ const processOutput: Output = {
 
 /** The message for an error thrown while checking: errno errors name the file; everything else keeps its message. */
 export function inputErrorMessage(err: unknown): string {
-  const e = err as NodeJS.ErrnoException;
-  if (e && typeof e === 'object' && typeof e.code === 'string' && typeof e.path === 'string') {
-    const what = e.code === 'ENOENT' ? 'no such file' : e.code === 'EISDIR' ? 'is a directory, expected a file' : e.code === 'EACCES' ? 'permission denied' : e.code;
-    return `${e.path}: cannot read the file (${what})`;
-  }
+  const sys = systemErrorMessage(err);
+  if (sys) return sys;
   return err instanceof Error ? err.message : String(err);
 }
 
@@ -36,8 +34,14 @@ export async function reportCheck(
   try {
     result = await work();
   } catch (err) {
-    out.stderr(`ratchet check ${gate}: ${inputErrorMessage(err)}\n`);
+    out.stderr(`ratchet: check ${gate}: ${inputErrorMessage(err)}\n`);
     if (process.env.RATCHET_DEBUG && err instanceof Error && err.stack) out.stderr(err.stack + '\n');
+    return 2;
+  }
+  // A file without frames is bad input, not a verdict (exit 2, nothing on stdout).
+  const frames = (result.figures as { frames?: unknown }).frames;
+  if (frames === 0) {
+    out.stderr(`ratchet: check ${gate}: found no frame to judge in the input (an empty file, or only blank lines); give extended XYZ with at least one frame\n`);
     return 2;
   }
   out.stdout(options.json ? JSON.stringify(resultJson(result)) + '\n' : formatResult(result));

@@ -32,6 +32,11 @@ export interface TaskInfo {
   tool_version?: string;
   /** Latest recorded `state` of the task, if task events carry one. */
   state?: string;
+  /**
+   * The programs its latest attempt ran (task_submitted.programs): path as written in the campaign ->
+   * "sha256:<hex>" of the file or folder when the attempt started.
+   */
+  programs?: Record<string, string>;
   /** Number of task events seen for it. */
   events: number;
 }
@@ -71,6 +76,12 @@ export function addToLineage(g: LineageGraph, e: LedgerEvent): LineageGraph {
     if (typeof e.campaign_sha256 === 'string') t.campaign_sha256 = e.campaign_sha256;
     if (typeof e.tool_version === 'string') t.tool_version = e.tool_version;
     if (typeof e.state === 'string') t.state = e.state;
+    if (e.type === 'task_submitted') {
+      // Each attempt says what it ran; an attempt without programs (none listed) clears an earlier one's.
+      const p = e.programs;
+      if (p && typeof p === 'object' && !Array.isArray(p)) t.programs = { ...(p as Record<string, string>) };
+      else delete t.programs;
+    }
   }
   return g;
 }
@@ -139,6 +150,7 @@ function taskInfo(g: LineageGraph, a: ArtifactEvent): TaskInfo | undefined {
     campaign_sha256: typeof a.campaign_sha256 === 'string' ? a.campaign_sha256 : fromEvents?.campaign_sha256,
     tool_version: typeof a.tool_version === 'string' ? a.tool_version : fromEvents?.tool_version,
     ...(fromEvents?.state !== undefined ? { state: fromEvents.state } : {}),
+    ...(fromEvents?.programs !== undefined ? { programs: fromEvents.programs } : {}),
   };
 }
 

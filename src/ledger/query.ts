@@ -20,6 +20,7 @@ import {
   type LineageGraph,
   type LineageNode,
 } from './lineage.js';
+import { identityProblem } from '../engine/identity.js';
 
 /** A lineage question that cannot be answered: bad input or nothing found (exit 2). */
 export class LineageQueryError extends Error {
@@ -52,7 +53,10 @@ export async function findCampaignDir(start: string): Promise<string | null> {
 export interface LineageRequest {
   /** A path (file or directory) or an artifact id ("sha256:<hex>" or a unique hex prefix of 6+ digits). */
   target: string;
-  /** Campaign directory; default: walk up from the path (or the working directory for an id). */
+  /**
+   * The campaign file, or its directory; default: walk up from the path (or the working directory for
+   * an id). A campaign file must be the one that owns the folder's state (one state per campaign file).
+   */
   campaign?: string;
   /** Downstream instead of upstream. */
   down?: boolean;
@@ -69,6 +73,8 @@ export interface LineageAnswer {
   artifact: string;
   tree: LineageNode;
   frame?: FrameTrace;
+  /** The campaign file that owns this folder's state, as the ledger records it (relative to the folder). */
+  campaign_file?: string;
   /** Plain-words remarks (torn ledger tail, file registered elsewhere, unreadable selection file). */
   notes: string[];
 }
@@ -98,8 +104,18 @@ export async function lineageQuery(req: LineageRequest): Promise<LineageAnswer> 
   const asId = looksLikeId && (req.target.startsWith('sha256:') || !pathExists);
 
   let campaign: string | null;
+  let campaignFile: string | undefined;
   if (req.campaign !== undefined) {
     campaign = resolve(cwd, req.campaign);
+    if (await isFile(campaign)) {
+      campaignFile = campaign;
+      campaign = dirname(campaign);
+      if (!pathExists && !isAbsolute(req.target) && !looksLikeId) {
+        // A relative path not found from here is taken relative to the campaign's folder.
+        abs = resolve(campaign, req.target);
+        pathExists = await exists(abs);
+      }
+    }
     if (!(await isDir(join(campaign, RATCHET_DIR)))) {
       throw new LineageQueryError(`${campaign}: no ${RATCHET_DIR}/ directory here: not a campaign directory that has run (expected --campaign to name the directory holding the campaign's ${RATCHET_DIR}/)`);
     }
@@ -113,13 +129,26 @@ export async function lineageQuery(req: LineageRequest): Promise<LineageAnswer> 
   }
 
   let graph: LineageGraph;
+  let identity: { name: string; file: string; path: string } | undefined;
   try {
-    const r = await foldLedger(campaign, addToLineage, emptyLineageGraph());
+    const r = await foldLedger(
+      campaign,
+      (g: LineageGraph, e) => {
+        if (identity === undefined && e.type === 'campaign_identity' && typeof e.file === 'string') identity = e as unknown as typeof identity;
+        return addToLineage(g, e);
+      },
+      emptyLineageGraph(),
+    );
     graph = r.state;
     if (r.torn) notes.push(`the ledger's last line (line ${r.torn.line}) is incomplete (a crash or a write in progress) and was skipped`);
   } catch (err) {
     if (err instanceof LedgerError) throw new LineageQueryError(err.message);
     throw err;
+  }
+  // One state per campaign file: another campaign file's folder holds no lineage of it.
+  if (campaignFile !== undefined) {
+    const problem = identityProblem({ dir: campaign, file: campaignFile, name: '' }, identity);
+    if (problem) throw new LineageQueryError(problem);
   }
   if (graph.byId.size === 0) throw new LineageQueryError(`${campaign}: the ledger records no artifacts yet`);
 
@@ -176,12 +205,20 @@ export async function lineageQuery(req: LineageRequest): Promise<LineageAnswer> 
     direction: req.down ? 'downstream' : 'upstream',
     artifact: id,
     tree,
+    ...(identity ? { campaign_file: identity.file } : {}),
     notes,
   };
   if (req.frame !== undefined) {
     answer.frame = await frameUpstream(graph, id, req.frame, (a, f) => readFrameSource(join(campaign as string, a.path), f));
   }
   return answer;
+}
+
+async function isFile(p: string): Promise<boolean> {
+  return fsp
+    .stat(p)
+    .then((s) => s.isFile())
+    .catch(() => false);
 }
 
 async function isDir(p: string): Promise<boolean> {
@@ -255,6 +292,8 @@ function nodeDetail(n: LineageNode): string[] {
     if (n.task.tool_version) bits.push(`ratchet ${n.task.tool_version}`);
     if (n.task.state) bits.push(n.task.state);
     out.push(`task ${n.task.id}${n.task.command ? `: ${oneLine(n.task.command)}` : ''}${bits.length ? `  (${bits.join(', ')})` : ''}`);
+    const progs = Object.entries(n.task.programs ?? {});
+    if (progs.length) out.push(`programs: ${progs.map(([p, id]) => `${p} ${shortId(id)}`).join(', ')}`);
   } else if (n.children.length === 0 && !n.truncated) {
     out.push('given to the campaign (no producing task)');
   }
@@ -304,7 +343,7 @@ export function renderFrameTrace(t: FrameTrace): string {
 
 /** The whole text answer (tree, optional frame trace, notes). */
 export function renderAnswer(a: LineageAnswer): string {
-  let s = `${a.direction} of ${a.artifact} in ${a.campaign}\n` + renderTree(a.tree);
+  let s = `${a.direction} of ${a.artifact} in ${a.campaign}${a.campaign_file ? ` (campaign file ${a.campaign_file})` : ''}\n` + renderTree(a.tree);
   if (a.frame) s += '\nframe lineage:\n' + renderFrameTrace(a.frame);
   for (const n of a.notes) s += `note: ${n}\n`;
   return s;

@@ -3,8 +3,10 @@ import type { Frame } from '../atoms/frame.js';
 
 /**
  * A frame's structural identity: sha256 over species, positions, cell and pbc (the bytes of the
- * float64 values, which the extended XYZ writer round-trips exactly). Labels and info are left out,
- * so the same structure is the same frame before and after labeling.
+ * float64 values, which the extended XYZ writer round-trips exactly). Labels and info are left out.
+ * A labeler may round positions when it writes them back (within the label gate's 1e-4 Å), which
+ * changes the digest: the label stage therefore hashes the frame it SENT, never the labeled copy,
+ * and writes the sent structure into the data sets, so the digest of a data-set frame is the same.
  */
 export function frameDigest(frame: Frame): Buffer {
   const h = createHash('sha256');

@@ -1,4 +1,5 @@
 import type { Frame } from '../atoms/frame.js';
+import { structureOf } from './hygiene.js';
 import type { Random } from './random.js';
 
 export interface PerturbOptions {
@@ -11,7 +12,9 @@ export interface PerturbOptions {
 /**
  * A perturbed copy of a starting structure for round 0: the cell is strained by a random symmetric
  * strain (atoms keep their fractional coordinates), then every atom is displaced at random.
- * Only periodic directions are strained. Labels (energy, forces, ...) are dropped: they no longer apply.
+ * Only periodic directions are strained. The copy is the structure alone (species, positions, cell, pbc):
+ * every info key and per-atom array of the start is dropped (./hygiene.ts), labels no longer apply and
+ * nothing else of the start may reach the labeler.
  */
 export function perturbFrame(frame: Frame, opts: PerturbOptions, rng: Random): Frame {
   const n = frame.species.length;
@@ -39,9 +42,5 @@ export function perturbFrame(frame: Frame, opts: PerturbOptions, rng: Random): F
     apply(cell, 3);
   }
   for (let k = 0; k < 3 * n; k++) positions[k] += opts.displacement * rng.normal();
-  const arrays = new Map(frame.arrays);
-  for (const name of [...arrays.keys()]) if (name === 'forces' || name.startsWith('forces_')) arrays.delete(name);
-  const info = new Map(frame.info);
-  for (const key of ['energy', 'free_energy', 'total_energy', 'stress', 'virial']) info.delete(key);
-  return { species: [...frame.species], positions, cell, pbc: [...frame.pbc] as Frame['pbc'], arrays, info };
+  return { ...structureOf(frame), positions, cell };
 }

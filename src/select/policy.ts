@@ -7,8 +7,10 @@
  * per frame, the committee spread (and its band), the contacts check and a structural fingerprint;
  * frames from the first contact violation on are dropped (the run had left physical ground); then at most
  * `select.max_per_condition` informative, sane frames per condition are picked by farthest-point
- * selection, and a second pass writes them out. Every written frame carries `source_artifact` and
- * `source_frame`, so lineage reaches single frames.
+ * selection, and a second pass writes them out. Every written frame is made by one rule (./hygiene.ts):
+ * its structure only, nothing a model or MD program wrote (forces, stress, velocities, charges, user keys...),
+ * plus ratchet's provenance keys: `source_artifact` and `source_frame` (so lineage reaches single frames),
+ * and `perturbation` (round 0) or `condition` and `committee_spread` (later rounds).
  */
 import type { Frame } from '../atoms/frame.js';
 import { readFrames } from '../atoms/xyz/reader.js';
@@ -16,6 +18,7 @@ import { writeFrames } from '../atoms/xyz/writer.js';
 import { bandOf, committeeFrame, COMMITTEE_DEFAULTS, type Band } from '../gates/committee.js';
 import { contactsFrame, CONTACTS_DEFAULTS } from '../gates/contacts.js';
 import { pairDistanceFingerprint } from './fingerprint.js';
+import { forLabeling } from './hygiene.js';
 import { perturbFrame } from './perturb.js';
 import { pickInformative, type Candidate } from './pick.js';
 import { seededRandom } from './random.js';
@@ -30,7 +33,7 @@ export interface PolicySettings {
     fingerprint: { cutoff: number; bins: number };
   };
   /** Contact limits for selected frames (the simulate stage's). */
-  contacts: { scale: number; min_distance: Record<string, number> };
+  contacts: { scale: number; hydrogen_scale?: number; min_distance: Record<string, number> };
   species: string[];
 }
 
@@ -48,18 +51,6 @@ function settings(params: Record<string, unknown>): PolicySettings {
   };
 }
 
-/** Strip what a model or a previous labeling put on a frame; keep structure, velocities and provenance. */
-function forLabeling(frame: Frame, artifact: string, index: number, extra: Record<string, string | number>): Frame {
-  const arrays = new Map(frame.arrays);
-  for (const name of [...arrays.keys()]) if (name === 'forces' || /^forces_\d+$/.test(name)) arrays.delete(name);
-  const info = new Map(frame.info);
-  for (const key of [...info.keys()]) if (key === 'energy' || key === 'total_energy' || /^energy_\d+$/.test(key)) info.delete(key);
-  info.set('source_artifact', artifact);
-  info.set('source_frame', index);
-  for (const [k, v] of Object.entries(extra)) info.set(k, v);
-  return { ...frame, arrays, info };
-}
-
 async function perturbStarts(req: SampleRequest, s: PolicySettings): Promise<SampleOutcome> {
   const rng = seededRandom(`perturb:${s.perturb.seed}:${req.seed}`);
   let written = 0;
@@ -72,7 +63,7 @@ async function perturbStarts(req: SampleRequest, s: PolicySettings): Promise<Sam
         for (let c = 0; c < s.perturb.count; c++) {
           const p = perturbFrame(f, { displacement: s.perturb.displacement, strain: s.perturb.strain }, rng);
           written++;
-          yield forLabeling(p, src.artifact, index, { perturbation: c });
+          yield forLabeling(p, { source_artifact: src.artifact, source_frame: index, perturbation: c });
         }
         index++;
       }
@@ -111,7 +102,7 @@ async function scanTrajectory(path: string, s: PolicySettings, models: number): 
     const band = bandOf(com.bad !== null ? NaN : com.max, lower, upper);
     bands[band]++;
     if (firstContact !== null) continue;
-    const con = contactsFrame(f, index, { scale: s.contacts.scale, pairLimits: s.contacts.min_distance, maxPerFrame: 1 });
+    const con = contactsFrame(f, index, { scale: s.contacts.scale, hydrogenScale: s.contacts.hydrogen_scale, pairLimits: s.contacts.min_distance, maxPerFrame: 1 });
     if (con.violationCount > 0 || con.bad) {
       firstContact = index;
       continue;
@@ -151,8 +142,10 @@ async function selectFromTrajectories(req: SampleRequest, s: PolicySettings): Pr
       let index = 0;
       for await (const f of readFrames(src.path)) {
         if (indices.has(index)) {
+          // `f` is the raw trajectory frame (every column, the committee's forces_0 ... forces_{M-1} included);
+          // the data-hygiene rule (./hygiene.ts) is applied here, once, for every frame sent to labeling.
           written++;
-          yield forLabeling(f, src.artifact, index, { condition: src.condition ?? '', committee_spread: spread.get(index)! });
+          yield forLabeling(f, { source_artifact: src.artifact, source_frame: index, condition: src.condition ?? '', committee_spread: spread.get(index)! });
         }
         index++;
       }

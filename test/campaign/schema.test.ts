@@ -43,7 +43,7 @@ describe('defaults', () => {
   it('fills the committee, holdout, rounds and backend', () => {
     expect(c.committee).toEqual({ size: 4, bootstrap: false, seed: 0 });
     expect(c.holdout).toBe(0.1);
-    expect(c.rounds).toEqual({ max: 10, converge: { confident_fraction: 0.99 } }); // issue 4: "default 0.99"
+    expect(c.rounds).toEqual({ max: 10, converge: { confident_fraction: 0.99 }, explore_unvalidated: { max_rounds: 0, steps_fraction: 0.1 } }); // issue 4: "default 0.99"; exploring without validation is off by default
     expect(c.backend.kind).toBe('local');
     expect(c.backend.jobs).toBeUndefined();
     expect(c.budget).toEqual({});
@@ -51,16 +51,24 @@ describe('defaults', () => {
   it('fills every stage, the sample stage included when left out', () => {
     for (const s of STAGES) {
       const st = stageSettings(c, s);
-      expect(st.resources).toEqual({ cpus: 1, gpus: 0, walltime: 3600, extra_directives: [] });
+      expect(st.resources).toEqual({ cpus: 1, gpus: 0, walltime: 3600, scheduler_lines: [] });
       expect(st.setup).toEqual([]);
       expect(st.attempts).toBe(2);
       expect(st.params).toEqual({});
     }
     expect(c.stages.sample.command).toBeUndefined();
     expect(c.stages.sample.perturb).toEqual({ count: 10, displacement: 0.05, strain: 0.02, seed: 0 });
-    expect(c.stages.sample.select).toEqual({ window: { lower: 0.05, upper: 0.5 }, max_per_condition: 50, fingerprint: { cutoff: 6, bins: 32 } });
+    expect(c.stages.sample.select).toEqual({ window: { lower: 0.05, upper: 0.5, calibrate: false }, max_per_condition: 50, fingerprint: { cutoff: 6, bins: 32 } });
     expect(c.stages.label).toMatchObject({ frames_per_task: 20, max_force: 50, max_rejected_fraction: 0.1, contacts: { scale: 0.5, min_distance: {} } });
-    expect(c.stages.validate).toMatchObject({ errors: { energy_rmse: 10, force_rmse: 150 }, max_drift: 1, nve_steps: 1000 });
+    // limits: the table of src/gates/limits.ts, parsed to {warn, fail} (null = not checked)
+    expect(c.stages.validate).toMatchObject({
+      errors: { energy_rmse: { warn: 5, fail: 10 }, force_rmse: { warn: 100, fail: 150 }, energy_mae: { warn: null, fail: null }, stress_rmse: { warn: null, fail: null } },
+      max_drift: { warn: 0.1, fail: 1 },
+      max_excursion: { warn: 10, fail: 100 },
+      drift_min_frames: 10,
+      drift_min_span: 1,
+      nve_steps: 1000,
+    });
     expect(c.stages.validate.nve_timestep).toBeUndefined();
   });
   it('normalises start to a list and gives each condition a seed (its position)', () => {
@@ -79,14 +87,14 @@ describe('defaults', () => {
     const input = minimal();
     input.stages.label = {
       command: 'x',
-      resources: { walltime: '1-02:00:00', memory: '4G', extra_directives: ['--constraint=skylake'] },
+      resources: { walltime: '1-02:00:00', memory: '4G', scheduler_lines: ['--constraint=skylake'] },
       setup: 'module load dft/1.0\nsource ~/venv/bin/activate\n',
     };
     const p = parseCampaign(input);
     expect(p.stages.label.resources.walltime).toBe(26 * 3600);
     expect(p.stages.label.resources.memory).toBe(4096);
     expect(p.stages.label.setup).toEqual(['module load dft/1.0', 'source ~/venv/bin/activate']);
-    expect(p.stages.label.resources.extra_directives).toEqual(['--constraint=skylake']);
+    expect(p.stages.label.resources.scheduler_lines).toEqual(['--constraint=skylake']);
   });
   it('keeps a campaign name with spaces, quotes and shell characters as written', () => {
     const input = minimal();
@@ -177,8 +185,8 @@ describe('rejections', () => {
   });
   it('rejects a scheduler directive spanning lines (it would break the batch script header)', () => {
     const input = minimal() as Record<string, any>;
-    input.stages.train.resources = { extra_directives: ['--exclusive\n#SBATCH --x'] };
-    expect(issues(input)).toEqual([{ path: 'stages.train.resources.extra_directives.0', message: 'expected a scheduler directive line on one line' }]);
+    input.stages.train.resources = { scheduler_lines: ['--exclusive\n#SBATCH --x'] };
+    expect(issues(input)).toEqual([{ path: 'stages.train.resources.scheduler_lines.0', message: 'expected a scheduler directive line on one line' }]);
   });
   it('accepts every backend kind and nothing else', () => {
     for (const kind of ['local', 'slurm', 'pbs', 'lsf', 'sge']) {

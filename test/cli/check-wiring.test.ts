@@ -8,6 +8,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { Command } from 'commander';
 import { register } from '../../src/cli/check.js';
+import { oneVoice } from '../../src/cli/errors.js';
 import { writeFrames } from '../../src/atoms/xyz/writer.js';
 import { makeFrame } from '../gates/helpers.js';
 
@@ -34,7 +35,7 @@ async function ratchet(...args: string[]): Promise<{ code: number; stdout: strin
   process.exitCode = undefined;
   let code: number;
   try {
-    const program = new Command().name('ratchet');
+    const program = oneVoice(new Command().name('ratchet'));
     register(program);
     await program.parseAsync(['node', 'ratchet', 'check', ...args]);
     code = Number(process.exitCode ?? 0);
@@ -82,16 +83,31 @@ describe('ratchet check wiring', () => {
     expect(o.violations).toHaveLength(1);
   });
 
+  it('contacts --hydrogen-scale reaches the gate', async () => {
+    const r = await ratchet('contacts', at('close.xyz'), '--hydrogen-scale', '1.3', '--json');
+    const o = JSON.parse(r.stdout);
+    expect(o.hydrogen_scale).toBe(1.3);
+    expect(o.violation_count).toBe(2); // H-H: max(0.5, 1.3) x 0.62 = 0.806 Å
+  });
+
+  it('committee --models: frames lacking a member fail (exit 1), naming frame and key', async () => {
+    const r = await ratchet('committee', at('committee.xyz'), '--models', '3');
+    expect(r.code).toBe(1);
+    expect(r.stdout).toContain('committee: FAIL\n');
+    expect(r.stdout).toContain(`3 of 3 frame(s) do not carry exactly the committee's 3 force arrays; the first is frame 0 of ${at('committee.xyz')} with 2 committee force array(s) (forces_0, forces_1) for 3 models (forces_0 ... forces_2): forces_2 missing`);
+  });
+
   it('drift readable text; a fail exits 1', async () => {
     const r = await ratchet('drift', at('thermo.csv'), '--atoms', '10');
-    expect(r.code).toBe(1); // 5 meV/atom/ps > 1
+    expect(r.code).toBe(1); // 3 frames: too few to judge (at least 10)
     expect(r.stdout).toContain('drift: FAIL\n');
-    expect(r.stdout).toMatch(/slope\s+5 meV\/atom\/ps \(warn above 0\.1, fail above 1 in magnitude\)/);
+    expect(r.stdout).toMatch(/slope\s+5 ± 2\.9 meV\/atom\/ps \(warn above 0\.1, fail above 1 in magnitude; warn only beyond 2 standard errors\)/);
+    expect(r.stdout).toContain('  - 3 usable frames over 2 ps: too few to judge the drift (at least 10 frames over at least 1 ps needed)\n');
     expect(r.stdout).toMatch(/mean temperature\s+305 K\n/);
   });
 
   it('drift table options: --step-column with --timestep, --energy-column, --format', async () => {
-    const r = await ratchet('drift', at('md.dat'), '--atoms', '2', '--timestep', '0.5', '--energy-column', 'TotEng', '--format', 'table', '--json');
+    const r = await ratchet('drift', at('md.dat'), '--atoms', '2', '--timestep', '0.5', '--energy-column', 'TotEng', '--format', 'table', '--json', '--drift-min-span', '0.1', '--drift-min-frames', '3');
     expect(r.code).toBe(0);
     const o = JSON.parse(r.stdout);
     expect(o.time_source).toBe("column 'Step' x 0.5 fs");
@@ -111,35 +127,35 @@ describe('ratchet check wiring', () => {
     [
       'a thermo table without an atom count',
       () => ['drift', at('thermo.csv')],
-      () => `ratchet check drift: ${at('thermo.csv')}: a thermo table does not say how many atoms it describes; give the atom count (1 if the energy column is already per atom)\n`,
+      () => `ratchet: check drift: ${at('thermo.csv')}: a thermo table does not say how many atoms it describes; give the atom count (1 if the energy column is already per atom)\n`,
     ],
     [
       'files without committee arrays',
       () => ['committee', at('h2.xyz')],
-      () => `ratchet check committee: ${at('h2.xyz')}: the first frame has 0 committee force array(s) named 'forces_0', 'forces_1', ...; a spread needs at least 2\n`,
+      () => `ratchet: check committee: ${at('h2.xyz')}: the first frame has 0 committee force array(s) named 'forces_0', 'forces_1', ...; a spread needs at least 2\n`,
     ],
     [
       'reference and prediction with different frame counts',
       () => ['errors', at('close.xyz'), at('h2.xyz')],
-      () => `ratchet check errors: ${at('h2.xyz')} has 1 frames but ${at('close.xyz')} has 2: the reference and predicted files must hold the same frames in the same order\n`,
+      () => `ratchet: check errors: ${at('h2.xyz')} has 1 frames but ${at('close.xyz')} has 2: the reference and predicted files must hold the same frames in the same order\n`,
     ],
     [
       'an XYZ file given as a drift table',
       () => ['drift', at('h2.xyz'), '--format', 'table', '--atoms', '2'],
-      () => `ratchet check drift: ${at('h2.xyz')}:1: expected a header row naming the columns before the first row of numbers\n`,
+      () => `ratchet: check drift: ${at('h2.xyz')}:1: expected a header row naming the columns before the first row of numbers\n`,
     ],
     [
       'a malformed pair limit',
       () => ['contacts', at('h2.xyz'), '--pair-limit', 'HH=1'],
-      () => "error: option '--pair-limit <A-B=Å>' argument 'HH=1' is invalid. expected SPECIES-SPECIES=DISTANCE in Å such as O-H=0.8, found 'HH=1'\n",
+      () => "ratchet: option '--pair-limit <A-B=Å>' argument 'HH=1' is invalid. expected SPECIES-SPECIES=DISTANCE in Å such as O-H=0.8, found 'HH=1'\n",
     ],
-    ['a negative scale', () => ['contacts', at('h2.xyz'), '--scale', '-1'], () => "error: option '--scale <x>' argument '-1' is invalid. expected a positive number, found '-1'\n"],
+    ['a negative scale', () => ['contacts', at('h2.xyz'), '--scale', '-1'], () => "ratchet: option '--scale <x>' argument '-1' is invalid. expected a positive number, found '-1'\n"],
     [
       'an unknown energy source',
       () => ['drift', at('h2.xyz'), '--energy-source', 'pe'],
-      () => "error: option '--energy-source <s>' argument 'pe' is invalid. expected one of auto, total, kinetic, found 'pe'\n",
+      () => "ratchet: option '--energy-source <s>' argument 'pe' is invalid. expected one of auto, total, kinetic, found 'pe'\n",
     ],
-    ['errors with one file', () => ['errors', at('h2.xyz')], () => "error: missing required argument 'predicted'\n"],
+    ['errors with one file', () => ['errors', at('h2.xyz')], () => "ratchet: missing required argument 'predicted'\n"],
   ])('%s: exit 2 and the exact message', async (_what, args, message) => {
     const r = await ratchet(...args());
     expect(r.code).toBe(2);

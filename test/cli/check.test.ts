@@ -51,13 +51,16 @@ describe('ratchet check: output and exit codes', () => {
     expect(o.frames).toBe(2);
     expect(o.min_distance).toEqual({ value: 0.2, frame: 1, i: 0, j: 1, species: ['H', 'H'] });
     expect(o.pair_min).toEqual({ 'H-H': 0.2 });
-    expect(o.violations).toEqual([{ frame: 1, i: 0, j: 1, species: ['H', 'H'], distance: 0.2, limit: 0.31 }]);
+    // H-H limit: hydrogen scale 0.7 x (0.31 + 0.31) Å (Cordero et al. 2008 radius of H)
+    expect(o.violations).toEqual([{ frame: 1, i: 0, j: 1, species: ['H', 'H'], distance: 0.2, limit: 0.7 * (0.31 + 0.31) }]);
     expect(r.stdout.trim().split('\n')).toHaveLength(1);
   });
 
   it('drift on a thermo table: --json keys, warn exits 0', () => {
     // -100 eV -> -99.9 eV over 2 ps for 10 atoms: slope 5 meV/atom/ps by least squares (0, 0, 10 meV/atom at 0, 1, 2 ps)
-    const r = ratchet('drift', at('thermo.csv'), '--atoms', '10', '--json', '--slope-fail', '20');
+    // 3 rows over 2 ps are too few for the default minimum (10 frames): lowered here; the excursion of 10 meV/atom
+    // is above a warn limit of 5.
+    const r = ratchet('drift', at('thermo.csv'), '--atoms', '10', '--json', '--max-drift-fail', '20', '--drift-min-frames', '3', '--max-excursion-warn', '5');
     expect(r.code).toBe(0);
     const o = json(r.stdout);
     for (const k of ['frames', 'atoms', 'slope_meV_per_atom_per_ps', 'std_meV_per_atom', 'max_excursion_meV_per_atom', 'mean_temperature_K', 'verdict'])
@@ -68,6 +71,9 @@ describe('ratchet check: output and exit codes', () => {
     expect(o.slope_meV_per_atom_per_ps as number).toBeCloseTo(5, 9);
     expect(o.max_excursion_meV_per_atom as number).toBeCloseTo(10, 9);
     expect(o.mean_temperature_K as number).toBeCloseTo(305, 9);
+    // the OLS standard error of the slope: residuals (-1.667, 3.333, -1.667) meV/atom, sqrt(SSR / 1 / 2 ps^2)
+    expect(o.slope_se_meV_per_atom_per_ps as number).toBeCloseTo(Math.sqrt((50 / 3) / 2), 9);
+    expect(o.limits).toEqual({ max_drift: { warn: 0.1, fail: 20 }, max_excursion: { warn: 5, fail: 100 } });
   });
 
   it('errors --json: the issue keys', () => {
@@ -107,8 +113,8 @@ describe('ratchet check: output and exit codes', () => {
 
 describe('ratchet check: bad input exits 2 with a message naming the file', () => {
   it.each([
-    ['a missing file', () => ['contacts', at('nope.xyz')], () => `ratchet check contacts: ${at('nope.xyz')}: cannot read the file (no such file)\n`],
-    ['a bad option value', () => ['contacts', at('h2.xyz'), '--scale', 'abc'], () => "error: option '--scale <x>' argument 'abc' is invalid. expected a number, found 'abc'\n"],
+    ['a missing file', () => ['contacts', at('nope.xyz')], () => `ratchet: check contacts: ${at('nope.xyz')}: no such file or directory; check the path\n`],
+    ['a bad option value', () => ['contacts', at('h2.xyz'), '--scale', 'abc'], () => "ratchet: option '--scale <x>' argument 'abc' is invalid. expected a number, found 'abc'\n"],
   ])('%s', (_what, args, message) => {
     const r = ratchet(...args());
     expect(r.code).toBe(2);
@@ -119,7 +125,7 @@ describe('ratchet check: bad input exits 2 with a message naming the file', () =
   it('a broken extended XYZ file: the reader message with file and line', () => {
     const r = ratchet('contacts', at('broken.xyz'));
     expect(r.code).toBe(2);
-    expect(r.stderr.startsWith(`ratchet check contacts: ${at('broken.xyz')}:4: `)).toBe(true);
+    expect(r.stderr.startsWith(`ratchet: check contacts: ${at('broken.xyz')}:4: `)).toBe(true);
   });
 
   it('an unknown gate', () => {

@@ -204,6 +204,6 @@ describe('ratchet lineage (CLI)', () => {
     const r = cli(['lineage', 'structures/nothing-here.xyz', '--campaign', dir], tmpdir());
     expect(r.code).toBe(2);
     expect(r.stdout).toBe('');
-    expect(r.stderr).toMatch(/^ratchet lineage: .*nothing-here\.xyz: no such file, and the ledger records nothing at structures\/nothing-here\.xyz\n$/);
+    expect(r.stderr).toMatch(/^ratchet: .*nothing-here\.xyz: no such file, and the ledger records nothing at structures\/nothing-here\.xyz\n$/);
   });
 });

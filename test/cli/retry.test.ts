@@ -15,7 +15,7 @@ describe('ratchet retry', () => {
   it('runs a failed task again after run said how', () => {
     const { dir, file } = makeCampaign();
     writeFileSync(join(dir, 'fail-label-0002'), '');
-    const first = ratchet(['run', file, '--until', 'train']);
+    const first = ratchet(['run', file, '--stop-before', 'train']);
     expect(first.status).toBe(1);
     expect(first.stdout).toContain(`next: look at rounds/r0/label/0002/stderr.log, fix the cause (the command, its inputs or the campaign), then run: ratchet retry ${shellQuote(file)} r0/label/0002`);
 
@@ -24,7 +24,7 @@ describe('ratchet retry', () => {
     expect(bad.stderr).toContain('ratchet: r0/label/0000 succeeded and r0/label is not blocked by its gate; nothing to retry');
 
     rmSync(join(dir, 'fail-label-0002'));
-    const second = ratchet(['retry', file, 'r0/label', '--until', 'train']);
+    const second = ratchet(['retry', file, 'r0/label', '--stop-before', 'train']);
     expect(second.status, second.stderr).toBe(0);
     expect(second.stdout).toContain('retrying 1 task(s): r0/label/0002');
     expect(second.stdout).toContain('stopped before r0/train');

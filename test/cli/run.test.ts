@@ -34,7 +34,7 @@ describe('ratchet run', () => {
   it('Ctrl-C stops the tasks, records them as cancelled, exits 130; the next run goes on', async () => {
     const { dir, file } = makeCampaign();
     writeFileSync(join(dir, 'sleep-label'), '60');
-    const child = spawn(process.execPath, [...cliArgs(), 'run', file, '--until', 'train'], { cwd: REPO, env: { ...process.env, NO_COLOR: '1' } });
+    const child = spawn(process.execPath, [...cliArgs(), 'run', file, '--stop-before', 'train'], { cwd: REPO, env: { ...process.env, NO_COLOR: '1' } });
     let stdout = '';
     child.stdout.on('data', (d) => (stdout += d));
     const exited = new Promise<number | null>((resolve) => child.on('exit', (code) => resolve(code)));
@@ -64,7 +64,7 @@ describe('ratchet run', () => {
     expect(existsSync(join(dir, '.ratchet/lock'))).toBe(false);
 
     rmSync(join(dir, 'sleep-label'));
-    const again = ratchet(['run', file, '--until', 'train']);
+    const again = ratchet(['run', file, '--stop-before', 'train']);
     expect(again.status, again.stderr).toBe(0);
     const ev2 = ledgerEvents(dir);
     expect(ev2.filter((e) => e.type === 'task_retry').map((e) => [e.task, e.attempt]).sort()).toEqual([

@@ -67,10 +67,10 @@ describe('ratchet schema', () => {
     expect(r.code).toBe(2);
     expect(r.stdout).toBe('');
     expect(r.stderr).toBe(
-      'bad.yaml:10:17: stages.label.resources.walltime: expected a walltime like "02:00:00" (HH:MM:SS) or "1-12:00:00" (D-HH:MM:SS), or whole seconds, found "-1"\n',
+      'ratchet: bad.yaml:10:17: stages.label.resources.walltime: expected a walltime like "02:00:00" (HH:MM:SS) or "1-12:00:00" (D-HH:MM:SS), or whole seconds, found "-1"\n',
     );
     const missing = cli(['schema', 'nope.yaml'], dir);
     expect(missing.code).toBe(2);
-    expect(missing.stderr).toBe('nope.yaml: cannot read the campaign file: no such file or directory\n');
+    expect(missing.stderr).toBe('ratchet: nope.yaml: cannot read the campaign file: no such file or directory\n');
   });
 });

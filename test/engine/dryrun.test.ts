@@ -39,11 +39,11 @@ describe('dry run', () => {
     expect(tj).toMatchObject({ task: 'r0/sample/0000', builtin: true, params: { kind: 'start' } });
   });
 
-  it('respects --until', async () => {
+  it('respects --stop-before', async () => {
     const { dir, file } = makeCampaign();
     const r = await run(file, { dryRun: true, until: 'r0/sample' });
     expect(r.exitCode).toBe(0);
-    expect(r.text).toContain('the campaign stands at r0/sample: --until r0/sample stops before anything runs');
+    expect(r.text).toContain('the campaign stands at r0/sample: --stop-before r0/sample stops before anything runs');
     expect(existsSync(join(dir, '.ratchet/ledger.jsonl'))).toBe(false);
   });
 

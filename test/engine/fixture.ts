@@ -76,9 +76,11 @@ conditions:
   - name: cold
     temperature: 30
     steps: 10
+    write_every: 1
   - name: warm
     temperature: 90
     steps: 10
+    write_every: 1
 stages:
   sample:
     perturb:
@@ -96,6 +98,9 @@ stages:
   validate:
     command: ${cmd('validate')}
     nve_steps: 5
+    # the invented 5-step runs are far too short to judge a drift by the defaults (10 frames over 1 ps)
+    drift_min_frames: 3
+    drift_min_span: 0
     attempts: ${attempts}
   simulate:
     command: ${cmd('simulate')}

@@ -19,7 +19,7 @@ describe('task ids and stop points', () => {
     expect(parseTaskRef('r1/label/a/b')).toBeUndefined();
   });
 
-  it('parses --until in its three forms', () => {
+  it('parses --stop-before points in their three forms', () => {
     expect(parseUntil('2')).toEqual({ round: 2 });
     expect(parseUntil('r2')).toEqual({ round: 2 });
     expect(parseUntil('r1/train')).toEqual({ round: 1, stage: 'train' });
@@ -32,7 +32,7 @@ describe('task ids and stop points', () => {
     // In r0/label: the next train is r0/train; the next sample is r1/sample.
     expect(untilPoint({ stage: 'train' }, { round: 0, stage: 'label' })).toEqual({ round: 0, stage: 'train' });
     expect(untilPoint({ stage: 'sample' }, { round: 0, stage: 'label' })).toEqual({ round: 1, stage: 'sample' });
-    // While train itself is going on, --until train stops at once.
+    // While train itself is going on, --stop-before train stops at once.
     expect(untilPoint({ stage: 'train' }, { round: 3, stage: 'train' })).toEqual({ round: 3, stage: 'train' });
     expect(untilPoint({ round: 2 }, { round: 0, stage: 'label' })).toEqual({ round: 2, stage: 'sample' });
   });

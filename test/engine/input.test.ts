@@ -43,7 +43,7 @@ describe('bad input', () => {
 
   it('bad options: exit 2 before anything is written', async () => {
     const { dir, file } = makeCampaign();
-    expect((await run(file, { until: 'r1/trian' })).errors).toContain('--until: expected a round (2), a stage of a round (r1/train) or a stage (train), found "r1/trian"');
+    expect((await run(file, { until: 'r1/trian' })).errors).toContain('--stop-before: expected a round (2), a stage of a round (r1/train) or a stage (train), found "r1/trian"');
     expect((await run(file, { until: 'soon' })).exitCode).toBe(2);
     const jobs = await run(file, { jobs: '0' });
     expect(jobs.exitCode).toBe(2);

@@ -57,7 +57,7 @@ describe('a failing task and its retry', () => {
     rmSync(join(dir, 'fail-label-0001'));
     const second = await run(file, { retry: 'r0/label/0001', until: 'train' });
     expect(second.text).toContain('retrying 1 task(s): r0/label/0001');
-    expect(second.text).toContain('stopped before r0/train (--until the next train stage)');
+    expect(second.text).toContain('stopped before r0/train (--stop-before the next train stage)');
     expect(second.exitCode).toBe(0);
     const ev = ledgerEvents(dir);
     const retry = ev.find((e) => e.type === 'task_retry')!;

@@ -83,12 +83,15 @@ describe('committee spread', () => {
     expect(res.reasons).toContain('frame 1 has non-finite forces_0 (atom 0)');
   });
 
-  it('refuses fewer than two models, a missing array, and a changing number of models', () => {
+  it('refuses fewer than two models and a bad window; a missing or extra member fails the gate (committee-members.test.ts)', () => {
     expect(() => judge([frameWith([[0, 0, 0]])])).toThrow(new GateInputError("frame 0: found 1 committee force array(s) 'forces_0'...; a spread needs at least 2"));
-    expect(() => judge([frameWith([[0, 0, 0], [0, 0, 0]])], { models: 3 })).toThrow("frame 0: no per-atom 'forces_2' (expected 3 models)");
-    expect(() => judge([frameWith([[0, 0, 0], [0, 0, 0]]), frameWith([[0, 0, 0], [0, 0, 0], [1, 0, 0]])])).toThrow(
-      'frame 1: has 3 committee force arrays, frame 0 has 2',
-    );
+    const short = judge([frameWith([[0, 0, 0], [0, 0, 0]])], { models: 3 });
+    expect(short.verdict).toBe('fail');
+    expect(short.figures.incomplete).toEqual([{ frame: 0, present: ['forces_0', 'forces_1'], missing: ['forces_2'], extra: [] }]);
+    const grown = judge([frameWith([[0, 0, 0], [0, 0, 0]]), frameWith([[0, 0, 0], [0, 0, 0], [1, 0, 0]])]);
+    expect(grown.verdict).toBe('fail');
+    expect(grown.figures.models).toBe(2);
+    expect(grown.figures.incomplete).toEqual([{ frame: 1, present: ['forces_0', 'forces_1', 'forces_2'], missing: [], extra: ['forces_2'] }]);
     expect(() => judge([], { lower: 0.5, upper: 0.1 })).toThrow('the band window must satisfy 0 <= lower < upper (finite), found lower 0.5, upper 0.1');
   });
 

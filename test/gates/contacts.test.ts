@@ -7,12 +7,12 @@ import { ase, lcg, makeFrame } from './helpers.js';
 const judge = (frames: Frame[], opts = {}) => summarizeContacts(frames.map((f, k) => contactsFrame(f, k, opts)), opts);
 
 describe('contacts on structures with known distances', () => {
-  it('H2 at 0.74 Å passes (limit 0.5 x (0.31 + 0.31) Å, Cordero et al. 2008 radius of H)', () => {
+  it('H2 at 0.74 Å passes (limit 0.7 x (0.31 + 0.31) Å: the hydrogen scale; Cordero et al. 2008 radius of H)', () => {
     const res = judge([makeFrame({ species: ['H', 'H'], positions: [0, 0, 0, 0.74, 0, 0] })]);
     expect(res.verdict).toBe('pass');
     expect(res.figures.min_distance).toEqual({ value: 0.74, frame: 0, i: 0, j: 1, species: ['H', 'H'] });
     expect(res.figures.pair_min).toEqual({ 'H-H': 0.74 });
-    expect(res.figures.limits['H-H']).toBeCloseTo(0.31, 12);
+    expect(res.figures.limits['H-H']).toBeCloseTo(0.434, 12);
     expect(res.figures.violations).toEqual([]);
   });
 
@@ -105,13 +105,13 @@ print(json.dumps({'min': mins, 'count': count // 2}))`,
 
 describe('contacts: caps, frames, refusals', () => {
   it('keeps the most severe violations per frame, counts them all, and caps the total', () => {
-    // 50 H atoms on a line 0.01 Å apart: every pair less than 0.31 Å apart violates
+    // 50 H atoms on a line 0.01 Å apart: every pair less than 0.7 x 0.62 = 0.434 Å apart violates
     const positions = Array.from({ length: 50 }, (_, k) => [0.01 * k, 0, 0]).flat();
     const frame = makeFrame({ species: Array(50).fill('H'), positions });
     const s = contactsFrame(frame, 0, { maxPerFrame: 5 });
-    // brute force over all pairs of the same coordinates (the 0.31 Å separation sits on the limit, so count exactly)
+    // brute force over all pairs of the same coordinates (compared with the same limit expression, so count exactly)
     let expected = 0;
-    for (let i = 0; i < 50; i++) for (let j = i + 1; j < 50; j++) if (Math.abs(positions[3 * j] - positions[3 * i]) < 0.5 * (0.31 + 0.31)) expected++;
+    for (let i = 0; i < 50; i++) for (let j = i + 1; j < 50; j++) if (Math.abs(positions[3 * j] - positions[3 * i]) < 0.7 * (0.31 + 0.31)) expected++;
     expect(expected).toBeGreaterThan(1000);
     expect(s.violationCount).toBe(expected);
     expect(s.violations).toHaveLength(5);
@@ -168,6 +168,7 @@ describe('contacts: caps, frames, refusals', () => {
     expect(res.figures.min_distance).toBeNull();
     expect(judge([]).verdict).toBe('fail');
     expect(CONTACTS_DEFAULTS.scale).toBe(0.5);
+    expect(CONTACTS_DEFAULTS.hydrogenScale).toBe(0.7);
   });
 });
 

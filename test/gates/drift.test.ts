@@ -62,8 +62,9 @@ describe('drift: harmonic oscillators integrated with velocity Verlet (bounded e
     expect(f.duration_ps).toBeCloseTo(40, 12);
   });
 
-  it('mean temperature by equipartition with 3N dof for a molecule (non-periodic) matches ASE', () => {
-    const res = run(osc.frames);
+  it('mean temperature by equipartition with 3N dof (given) for a molecule (non-periodic) matches ASE', () => {
+    // ASE's get_temperature counts 3N degrees of freedom (less only its constraints): give the gate the same.
+    const res = run(osc.frames, { dof: 12 });
     // Independent cross-check: Debian's ASE computes the kinetic energy and temperature (3N dof, no constraints) of the
     // same atoms with the same masses (ASE's own table differs from IUPAC 2021 in the 5th digit for Ar); its velocity
     // unit is Å per ASE time unit, with 1 fs = ase.units.fs; ASE uses CODATA 2014 constants, hence 1e-6 agreement.
@@ -78,25 +79,30 @@ for fr in data:
 print(json.dumps(out))`,
       sample.map((f) => ({ species: f.species, masses: osc.masses, positions: chunk(f.positions), v: Array.from(f.arrays.get('velocities')!.values as Float64Array) })),
     );
-    expect(res.figures.degrees_of_freedom).toBe(12);
-    const ours = sample.map((f) => run([f]).figures.mean_temperature_K!);
+    expect(res.figures.dof).toBe(12);
+    expect(res.figures.dof_rule).toBe('given');
+    const ours = sample.map((f) => run([f], { dof: 12 }).figures.mean_temperature_K!);
     ours.forEach((T, k) => expect(T / temps[k]).toBeCloseTo(1, 6));
     // and the gate's mean is the mean of the per-frame temperatures
-    const all = osc.frames.map((f) => run([f]).figures.mean_temperature_K!);
+    const all = osc.frames.map((f) => run([f], { dof: 12 }).figures.mean_temperature_K!);
     expect(res.figures.mean_temperature_K!).toBeCloseTo(mean(all), 9);
   });
 
-  it('periodic systems default to 3N - 3 degrees of freedom; --dof overrides', () => {
+  it('periodic cells and clusters default to 3N - 3 degrees of freedom (centre-of-mass motion removed); --dof overrides', () => {
     const per = oscillatorRun({ species: ['Ar', 'H', 'Ar', 'H'], k: 2, h: 1, steps: 200, every: 20, q0, v0, cell: [20, 0, 0, 0, 20, 0, 0, 0, 20] });
     const a = run(per.frames);
     const b = run(osc.frames.slice(0, 11));
-    expect(a.figures.degrees_of_freedom).toBe(9);
+    expect(a.figures.dof).toBe(9);
+    expect(a.figures.dof_rule).toBe('3N - 3 (centre-of-mass motion removed)');
+    expect(b.figures.dof).toBe(9);
     expect(defaultDof(4, true)).toBe(9);
-    expect(defaultDof(4, false)).toBe(12);
+    expect(defaultDof(4, false)).toBe(9);
+    expect(defaultDof(1, false)).toBe(3);
     // same velocities, T scales as 1/dof
-    expect(a.figures.mean_temperature_K! * 9).toBeCloseTo(b.figures.mean_temperature_K! * 12, 6);
+    const b12 = run(osc.frames.slice(0, 11), { dof: 12 });
+    expect(a.figures.mean_temperature_K! * 9).toBeCloseTo(b12.figures.mean_temperature_K! * 12, 6);
     const c = run(per.frames, { dof: 12 });
-    expect(c.figures.mean_temperature_K!).toBeCloseTo(b.figures.mean_temperature_K!, 9);
+    expect(c.figures.mean_temperature_K!).toBeCloseTo(b12.figures.mean_temperature_K!, 9);
   });
 
   it('a deliberately drifting series: the known slope is recovered (within the oscillation bound), and the verdict follows the limits', () => {
@@ -206,7 +212,7 @@ describe('drift: time and input problems', () => {
   it('refuses a frame without any energy, and mixed energy sources', () => {
     const a = f({ total_energy: -1, time: 0 });
     const b = f({ time: 1 });
-    expect(() => run([a, b])).toThrow(new GateInputError("frame 1: neither 'total_energy' nor 'energy' with per-atom 'velocities'"));
+    expect(() => run([a, b])).toThrow(new GateInputError("frame 1: neither 'total_energy' nor 'energy' with per-atom 'velocities' (or ASE's 'momenta')"));
     const c = makeFrame({ species: ['Ar'], positions: [0, 0, 0], arrays: { velocities: [0, 0, 0] }, info: { energy: -1, time: 2 } });
     expect(() => run([a, c])).toThrow('frame 1: energy from energy+kinetic, earlier frames from total_energy');
     expect(() => run([c], { source: 'total' })).toThrow("frame 0: no 'total_energy' in the frame info");
@@ -230,7 +236,7 @@ describe('drift: time and input problems', () => {
   });
 
   it('defaults are the documented ones', () => {
-    expect(DRIFT_DEFAULTS).toEqual({ slopeWarn: 0.1, slopeFail: 1, excursionWarn: 10, excursionFail: 100 });
+    expect(DRIFT_DEFAULTS).toEqual({ slopeWarn: 0.1, slopeFail: 1, excursionWarn: 10, excursionFail: 100, minFrames: 10, minSpan: 1 });
     expect(atomicMass('Ar')).toBeCloseTo(39.95, 2); // IUPAC standard atomic weight of argon (abridged), used for kinetic energy
   });
 });

@@ -75,12 +75,22 @@ describe('errors: statistics against simple-statistics', () => {
   it('verdict against the default limits (force RMSE ~ 87 meV/Å: pass; tightened: warn, fail)', () => {
     expect(f.force_rmse_meV_per_A!).toBeGreaterThan(50);
     expect(f.force_rmse_meV_per_A!).toBeLessThan(150);
+    // 25 frames, 300 force components: enough to judge (no sample-size warn)
     expect(res.verdict).toBe('pass');
-    expect(compare(ref, pred, { forceRmseWarn: 50 }).verdict).toBe('warn');
-    const failed = compare(ref, pred, { forceRmseWarn: 10, forceRmseFail: 50 });
+    expect(res.reasons[0]).toBe('judged on 25 frames (100 atoms, 300 force components)');
+    expect(compare(ref, pred, { limits: { force_rmse: { warn: 50, fail: 1000 } } }).verdict).toBe('warn');
+    const failed = compare(ref, pred, { limits: { force_rmse: { warn: 10, fail: 50 } } });
     expect(failed.verdict).toBe('fail');
-    expect(failed.reasons[0]).toMatch(/^force RMSE \d+(\.\d+)? meV\/Å is above the fail limit 50$/);
-    expect(ERRORS_DEFAULTS).toEqual({ energyRmseWarn: 10, energyRmseFail: 50, forceRmseWarn: 150, forceRmseFail: 500, positionTolerance: 1e-4 });
+    expect(failed.reasons[0]).toMatch(/^force RMSE \(all elements\) \d+(\.\d+)? meV\/Å is above the fail limit 50 meV\/Å$/);
+    expect(ERRORS_DEFAULTS).toEqual({
+      energyRmseWarn: 5,
+      energyRmseFail: 10,
+      forceRmseWarn: 100,
+      forceRmseFail: 150,
+      minFrames: 10,
+      minForceComponents: 100,
+      positionTolerance: 1e-4,
+    });
   });
 
   it('a perfect prediction has zero errors', () => {

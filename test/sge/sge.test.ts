@@ -102,4 +102,29 @@ describe.skipIf(!installed)('real Grid Engine 8.1.9', () => {
     const [lost] = await settle(b, [{ id: 'r0/label/0001', job_id: '999999', dir: tempDir() }], 60_000);
     expect(lost.state).toBe('lost');
   }, 90_000);
+
+  it('tells a person\'s qdel of a waiting element from its own cancel; its own cancel of an array is one qdel', async () => {
+    // -tc 1 keeps elements 2-4 waiting. A waiting element that a person deletes leaves no accounting
+    // record (it never ran): seen waiting, then gone without a trace, it was cancelled outside ratchet.
+    const b = backend({ exitGraceS: 2, arrayThrottle: 1 });
+    const root = tempDir();
+    const arr = [0, 1, 2, 3].map((i) => writeTask(b, task(root, String(i).padStart(4, '0'), { command: 'sleep 300', resources: { ...small, walltime_s: 600 } })));
+    const subs = await submit(b, arr);
+    const until = Date.now() + 60_000;
+    for (;;) {
+      const st = await b.poll(subs);
+      if (st[0].state === 'running' && st[3].state === 'queued') break;
+      if (Date.now() > until) throw new Error(`element 1 did not start: ${st.map((x) => x.state).join(' ')}`);
+      await new Promise((r) => setTimeout(r, 1000));
+    }
+    const [job, fourth] = subs[3].job_id.split('.');
+    expect(spawnSync('qdel', [job, '-t', fourth]).status).toBe(0);
+    const [person] = await settle(b, [subs[3]], 90_000);
+    expect([person.state, person.outside]).toEqual(['cancelled', true]);
+    const before = b.cli.calls.get('qdel') ?? 0;
+    await b.cancel(subs.slice(0, 3));
+    expect((b.cli.calls.get('qdel') ?? 0) - before).toBe(1); // qdel <job> -t 1-3
+    const own = await settle(b, subs.slice(0, 3), 90_000);
+    expect(own.map((x) => [x.state, x.outside])).toEqual(Array(3).fill(['cancelled', undefined]));
+  }, 200_000);
 });

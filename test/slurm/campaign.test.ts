@@ -85,7 +85,7 @@ describe.skipIf(!slurmInstalled)('campaigns on a real Slurm 22.05', () => {
       (y) => y.replace(/\n {2}train:\n {4}command: (.*)\n {4}attempts: 1\n/, (_m, cmd: string) => `\n  train:\n    command: ${JSON.stringify(`${slow}\n${JSON.parse(cmd)}`)}\n    attempts: 2\n    resources: { walltime: "00:01:00" }\n`),
     );
     expect(readFileSync(c.file, 'utf8')).toContain('walltime: "00:01:00"');
-    walltime = { ...c, name, run: cli(['run', c.file, '--backend', 'slurm', '--follow', '--until', 'r0/validate']) };
+    walltime = { ...c, name, run: cli(['run', c.file, '--backend', 'slurm', '--follow', '--stop-before', 'r0/validate']) };
   }, 180_000);
 
   afterAll(() => {
@@ -122,7 +122,7 @@ describe.skipIf(!slurmInstalled)('campaigns on a real Slurm 22.05', () => {
     const name = `kill${TAG}`;
     const c = fakeCampaign(name, '  poll_interval: 1\n  array_throttle: 2\n');
     writeFileSync(join(c.dir, 'sleep-label'), '2');
-    const args = ['run', c.file, '--backend', 'slurm', '--follow', '--until', 'r0/validate'];
+    const args = ['run', c.file, '--backend', 'slurm', '--follow', '--stop-before', 'r0/validate'];
     // 1: killed right after the second label element's id is recorded (the built-in sampling's is the
     // first task_submitted event): the array's other elements are queued at Slurm, unrecorded.
     const first = await cli(args, { RATCHET_TEST_KILL_AT: 'submitted:3' });
@@ -163,7 +163,7 @@ describe.skipIf(!slurmInstalled)('campaigns on a real Slurm 22.05', () => {
     const name = `int${TAG}`;
     const c = fakeCampaign(name, '  poll_interval: 1\n  array_throttle: 1\n');
     writeFileSync(join(c.dir, 'sleep-label'), '4');
-    const args = ['run', c.file, '--backend', 'slurm', '--follow', '--until', 'r0/train'];
+    const args = ['run', c.file, '--backend', 'slurm', '--follow', '--stop-before', 'r0/train'];
     const run = cli(args);
     await waitFor('the label jobs to be submitted', () => submitted(c.dir).length === 6);
     run.kill('SIGINT');
@@ -192,7 +192,7 @@ describe.skipIf(!slurmInstalled)('campaigns on a real Slurm 22.05', () => {
     writeFileSync(join(c.dir, 'sleep-label'), '3');
     const outputs: string[] = [];
     for (let k = 0; k < 60; k++) {
-      const r = await cli(['run', c.file, '--backend', 'slurm', '--until', 'r0/validate']);
+      const r = await cli(['run', c.file, '--backend', 'slurm', '--stop-before', 'r0/validate']);
       expect(r.exitCode, String(r.all)).toBe(0);
       outputs.push(String(r.all));
       if (/stopped before r0\/validate/.test(String(r.all))) break;

@@ -38,7 +38,7 @@ import {
 import { guessFrameStart, parseRange, type RangeBase, type RangeScratch } from './range.js';
 import { readFrames } from './reader.js';
 import { END, FrameScanner, type FrameSpan } from './scanner.js';
-import { openSource } from './source.js';
+import { openSource, requireRegularFile } from './source.js';
 import { takeSpareWorker } from './spare.js';
 
 export type { FrameJob } from './map-protocol.js';
@@ -363,6 +363,7 @@ async function parallel<R>(
 async function isGzip(path: string): Promise<boolean> {
   const fh = await open(path, 'r');
   try {
+    requireRegularFile(path, await fh.stat());
     const head = Buffer.alloc(2);
     const { bytesRead } = await fh.read(head, 0, 2, 0);
     return bytesRead === 2 && head[0] === 0x1f && head[1] === 0x8b;

@@ -48,10 +48,22 @@ export class StreamSource implements ByteSource {
 }
 
 /** Open a file for reading: gzip is recognised by its first two bytes (0x1f 0x8b). */
+/**
+ * Throws a system-style error naming the path when `st` is not a regular file (a directory, a pipe, a
+ * terminal, a device): such a thing cannot be read by position, and reading it may never end.
+ */
+export function requireRegularFile(path: string, st: { isFile(): boolean; isDirectory(): boolean }): void {
+  if (st.isFile()) return;
+  const code = st.isDirectory() ? 'EISDIR' : 'ESPIPE';
+  throw Object.assign(new Error(`${path}: ${st.isDirectory() ? 'is a directory, expected a file' : 'not a regular file'}`), { code, path });
+}
+
 export async function openSource(path: string): Promise<ByteSource & { size: number }> {
   const fh = await open(path, 'r');
   try {
-    const { size } = await fh.stat();
+    const st = await fh.stat();
+    requireRegularFile(path, st);
+    const { size } = st;
     const head = Buffer.alloc(2);
     const { bytesRead } = await fh.read(head, 0, 2, 0);
     if (bytesRead === 2 && head[0] === 0x1f && head[1] === 0x8b) {

@@ -1,32 +1,44 @@
 /**
  * label: the selected frames in chunks of `frames_per_task`, one task per chunk. The engine writes
- * each chunk into its task directory as frames.xyz (registered as a 'chunk' artifact); the command
- * writes labeled.xyz: the same frames, in the same order, with `energy` (eV) and `forces` (eV/Å).
+ * each chunk into its task directory as frames.xyz (registered as a 'chunk' artifact): the structure
+ * of each frame and ratchet's provenance keys only (src/select/hygiene.ts); the command writes
+ * labeled.xyz: the same frames, in the same order, with `energy` (eV), `forces` (eV/Å) and, optionally,
+ * `stress` (eV/Å^3, src/atoms/stress.ts).
  *
- * Once every task succeeded, collect checks every labeled frame (energy and forces present and finite,
- * largest force component under `max_force`, no close contacts) and keeps the rejected ones out:
+ * Once every task succeeded, collect matches each task's labeled frames to the frames it was sent
+ * (same count, order, species, positions and cell within 1e-4 Å: src/select/label-match.ts), checks every
+ * labeled frame (energy and forces present and finite, stress well-formed when present, largest force
+ * component under `max_force`, no close contacts) and keeps the rejected ones out:
  *   rounds/rK/label/labeled.xyz  this round's accepted frames              (role 'labeled_round')
  *   rounds/rK/label/train.xyz    all rounds' accepted frames not held out  (role 'training_set')
  *   rounds/rK/label/test.xyz     all rounds' accepted frames held out      (role 'test_set')
  *   rounds/rK/label/check.json   what was rejected and why (its figures go into the verdict)
- * Held-out frames are chosen by a hash of their content (src/select/holdout.ts), so a frame is test or
- * train in every round alike. Gate: fails when a task returned a different number of frames than it
- * was given, or when more than `max_rejected_fraction` of the frames were rejected; warns for fewer.
+ * A frame in these files is the frame SENT (its structure, exactly, and provenance) with the reference
+ * quantities of its labeled copy (energy, forces, stress when present): nothing else the label program
+ * wrote or kept reaches them (the task's own labeled.xyz stays as written). Held-out frames are chosen by a
+ * hash of the structure sent (src/select/holdout.ts), so a frame is test or train in every round alike.
+ * Gate: fails when a task's frames do not match the frames it was given (a task with such a mismatch gives
+ * no frame to the data sets), or when more than `max_rejected_fraction` of the frames were rejected;
+ * warns for fewer.
  */
 import { createHash } from 'node:crypto';
 import { readFile } from 'node:fs/promises';
 import type { Frame } from '../../atoms/frame.js';
-import { realArray, numberInfo } from '../../atoms/frame.js';
+import { nearest } from '../../campaign/suggest.js';
+import { stressVoigt } from '../../atoms/stress.js';
 import { readFrames } from '../../atoms/xyz/reader.js';
 import { formatFrame } from '../../atoms/xyz/writer.js';
 import { contactsFrame } from '../../gates/contacts.js';
 import { fmt } from '../../gates/verdict.js';
 import { artifactId } from '../../ledger/artifacts.js';
 import { isHeldOut } from '../../select/holdout.js';
+import { cleanForLabeling, droppedKeys, forDataSet } from '../../select/hygiene.js';
+import { matchFrames, type MatchProblem } from '../../select/label-match.js';
 import { taskName, stageId } from '../ids.js';
 import { abs, stageDirRel } from '../layout.js';
 import { exists, readJsonMaybe, writeFileAtomic } from '../fsutil.js';
 import { SAMPLE_OUTPUT } from './sample.js';
+import { calibrationRecord } from '../calibrate.js';
 import { deriveSeed, stageOutputs, taskDir, combine, unique } from './common.js';
 import type { NewArtifact, PlannedTask, StageContext, StageDef, StagePlan } from './types.js';
 
@@ -45,16 +57,36 @@ export function labelFiles(ctx: StageContext, round: number): { labeled: string;
 
 export interface LabelCheckOptions {
   maxForce: number;
-  contacts: { scale: number; pairLimits: Record<string, number> };
+  contacts: { scale: number; hydrogenScale?: number; pairLimits: Record<string, number> };
+}
+
+/** " found A, B; did you mean A?": what a frame has instead of `wanted`, and the closest name. */
+function foundInstead(wanted: string, found: string[], what: string): string {
+  if (found.length === 0) return `; found no ${what}`;
+  const close = nearest(wanted, found) ?? found.find((k) => k.toLowerCase().includes(wanted.slice(0, 5)));
+  const shown = found.length > 12 ? `${found.slice(0, 12).join(', ')} and ${found.length - 12} more` : found.join(', ');
+  return `; found ${what} ${shown}${close ? `; did you mean ${close}?` : ''}`;
 }
 
 /** Why a labeled frame cannot be used, or null when it can. Pure. */
 export function labelProblem(frame: Frame, index: number, o: LabelCheckOptions): string | null {
-  const e = numberInfo(frame, 'energy');
-  if (e === undefined) return 'no energy';
-  if (!Number.isFinite(e)) return `non-finite energy ${e}`;
-  const f = realArray(frame, 'forces', 3);
-  if (!f) return 'no forces (a per-atom real array of width 3 named forces)';
+  const ev = frame.info.get('energy');
+  if (ev === undefined) return `no energy (info key \`energy\`, eV)${foundInstead('energy', [...frame.info.keys()], 'info keys')}`;
+  if (typeof ev !== 'number') return `energy (info key \`energy\`, eV) is not a number: found ${JSON.stringify(ev)}`;
+  if (!Number.isFinite(ev)) return `non-finite energy ${ev}`;
+  const col = frame.arrays.get('forces');
+  if (!col) return `no forces (per-atom real array \`forces\`, 3 components, eV/Å)${foundInstead('forces', [...frame.arrays.keys()], 'per-atom arrays')}`;
+  if (col.type !== 'R' || col.width !== 3) return `forces must be a per-atom real array of 3 components (eV/Å), found ${col.type}:${col.width}`;
+  const f = col.values as Float64Array;
+  if (frame.info.has('stress')) {
+    let s: Float64Array | undefined;
+    try {
+      s = stressVoigt(frame);
+    } catch (err) {
+      return (err as Error).message;
+    }
+    if (s && !s.every(Number.isFinite)) return 'non-finite stress (info key `stress`, eV/Å^3)';
+  }
   let worst = 0;
   let at = -1;
   for (let k = 0; k < f.length; k++) {
@@ -66,7 +98,7 @@ export function labelProblem(frame: Frame, index: number, o: LabelCheckOptions):
     }
   }
   if (worst > o.maxForce) return `force component ${fmt(worst)} eV/Å on atom ${at} is above max_force ${fmt(o.maxForce)} eV/Å`;
-  const c = contactsFrame(frame, index, { scale: o.contacts.scale, pairLimits: o.contacts.pairLimits, maxPerFrame: 1 });
+  const c = contactsFrame(frame, index, { scale: o.contacts.scale, hydrogenScale: o.contacts.hydrogenScale, pairLimits: o.contacts.pairLimits, maxPerFrame: 1 });
   if (c.missing) return c.missing;
   if (c.bad) return c.bad;
   if (c.violationCount > 0) {
@@ -82,22 +114,34 @@ interface Rejected {
   reason: string;
 }
 
+interface Mismatch {
+  task: string;
+  given: number;
+  returned: number;
+  kind?: MatchProblem['kind'];
+  /** The returned frame concerned, or null for the file as a whole (a missing frame). */
+  frame?: number | null;
+  reason?: string;
+}
+
 interface CheckSummary {
   frames: number;
   accepted: number;
   rejected_count: number;
   /** At most 100, in task and frame order. */
   rejected: Rejected[];
-  /** Tasks that returned a different number of frames than they were given. */
-  mismatched: { task: string; given: number; returned: number }[];
+  /** Tasks whose labeled frames do not match the frames they were given (count, order or structure). */
+  mismatched: Mismatch[];
+  /** Keys the labeled frames carried that do not reach the data sets (sorted). */
+  dropped_keys: string[];
   train_frames: number;
   test_frames: number;
 }
 
-async function countFrames(path: string): Promise<number> {
-  let n = 0;
-  for await (const _f of readFrames(path, { columns: [] })) n++;
-  return n;
+async function allFrames(path: string): Promise<Frame[]> {
+  const out: Frame[] = [];
+  for await (const f of readFrames(path)) out.push(f);
+  return out;
 }
 
 export const label: StageDef = {
@@ -107,7 +151,9 @@ export const label: StageDef = {
     const selected = stageOutputs(ctx, ctx.round, 'sample', SAMPLE_OUTPUT)[0];
     if (!selected?.artifact) throw new Error(`internal: ${stageId(ctx.round, 'sample')} has no registered frames`);
     const texts: string[] = [];
-    for await (const f of readFrames(selected.path)) texts.push(formatFrame(f));
+    // The data-hygiene rule once more, for frames a campaign's own sample command wrote: structure and
+    // provenance keys only (the built-in sampling already wrote them so; cleaning again changes nothing).
+    for await (const f of readFrames(selected.path)) texts.push(formatFrame(cleanForLabeling(f)));
     const per = ctx.view.framesPerTask;
     const count = Math.ceil(texts.length / per);
     const tasks: PlannedTask[] = [];
@@ -135,32 +181,40 @@ export const label: StageDef = {
     const c = ctx.view.campaign;
     const opts: LabelCheckOptions = {
       maxForce: c.stages.label.max_force,
-      contacts: { scale: c.stages.label.contacts.scale, pairLimits: c.stages.label.contacts.min_distance },
+      contacts: { scale: c.stages.label.contacts.scale, hydrogenScale: c.stages.label.contacts.hydrogen_scale, pairLimits: c.stages.label.contacts.min_distance },
     };
     const outs = stageOutputs(ctx, ctx.round, 'label', LABEL_OUTPUT);
     const accepted: string[] = [];
     const train: string[] = [];
     const test: string[] = [];
-    const summary: CheckSummary = { frames: 0, accepted: 0, rejected_count: 0, rejected: [], mismatched: [], train_frames: 0, test_frames: 0 };
+    const summary: CheckSummary = { frames: 0, accepted: 0, rejected_count: 0, rejected: [], mismatched: [], dropped_keys: [], train_frames: 0, test_frames: 0 };
+    const dropped = new Set<string>();
     for (const o of outs) {
-      const given = await countFrames(abs(taskDir(ctx, ctx.round, 'label', o.name), LABEL_INPUT));
-      let index = 0;
-      for await (const f of readFrames(o.path)) {
+      const sent = await allFrames(abs(taskDir(ctx, ctx.round, 'label', o.name), LABEL_INPUT));
+      const got = await allFrames(o.path);
+      summary.frames += got.length;
+      const mismatch = matchFrames(sent, got);
+      if (mismatch) {
+        // Labels that cannot be tied to the frames sent are not used at all (the gate fails).
+        summary.mismatched.push({ task: o.task, given: sent.length, returned: got.length, ...mismatch });
+        continue;
+      }
+      got.forEach((f, index) => {
         const problem = labelProblem(f, index, opts);
-        summary.frames++;
         if (problem) {
           summary.rejected_count++;
           if (summary.rejected.length < 100) summary.rejected.push({ task: o.task, frame: index, reason: problem });
-        } else {
-          const text = formatFrame(f);
-          accepted.push(text);
-          if (isHeldOut(f, c.holdout)) test.push(text);
-          else train.push(text);
+          return;
         }
-        index++;
-      }
-      if (index !== given) summary.mismatched.push({ task: o.task, given, returned: index });
+        const kept = forDataSet(sent[index], f);
+        for (const k of droppedKeys(f, kept)) dropped.add(k);
+        const text = formatFrame(kept);
+        accepted.push(text);
+        if (isHeldOut(sent[index], c.holdout)) test.push(text);
+        else train.push(text);
+      });
     }
+    summary.dropped_keys = [...dropped].sort();
     summary.accepted = accepted.length;
     const files = labelFiles(ctx, ctx.round);
     const prev = ctx.round > 0 ? labelFiles(ctx, ctx.round - 1) : undefined;
@@ -193,7 +247,9 @@ export const label: StageDef = {
     let verdict: 'pass' | 'warn' | 'fail' = 'pass';
     for (const m of s.mismatched) {
       verdict = 'fail';
-      reasons.push(`${m.task} returned ${m.returned} frame(s) for the ${m.given} it was given`);
+      // Older check files have no reason: only the counts.
+      const what = m.reason ?? `returned ${m.returned} frame(s) for the ${m.given} it was given`;
+      reasons.push(m.kind === 'structure' ? `${m.task} frame ${m.frame}: ${what}` : `${m.task}: ${what}`);
     }
     if (s.rejected_count > 0) {
       const frac = s.frames === 0 ? 0 : s.rejected_count / s.frames;
@@ -208,12 +264,15 @@ export const label: StageDef = {
       }
     }
     if (verdict === 'pass') reasons.push(`${s.accepted} frame(s) labeled; training set ${s.train_frames}, held out ${s.test_frames}`);
-    return combine([{ gate: 'labels', verdict, reasons, figures: { ...s } }], {
+    // The committee's spread against the true error on the frames just labeled (src/engine/calibrate.ts).
+    const cal = await calibrationRecord(ctx);
+    return combine([{ gate: 'labels', verdict, reasons, figures: { ...s } }, ...(cal ? [cal.record] : [])], {
       frames: s.frames,
       accepted: s.accepted,
       rejected: s.rejected_count,
       train_frames: s.train_frames,
       test_frames: s.test_frames,
+      ...(cal ? { calibration: cal.figures } : {}),
     });
   },
 };

@@ -8,6 +8,7 @@
  */
 import { readFrames } from '../../atoms/xyz/reader.js';
 import { readJsonMaybe } from '../fsutil.js';
+import { windowFor } from '../calibrate.js';
 import { abs, taskDirRel } from '../layout.js';
 import type { SampleOutcome, SampleSource } from '../sample-policy.js';
 import { deriveSeed, runGate, stageOutputs, combine } from './common.js';
@@ -53,7 +54,10 @@ export function sampleParams(ctx: StageContext): Record<string, unknown> {
   const s = c.stages.sample;
   // What the policy reads (PolicySettings in src/select/policy.ts): selected frames must pass the
   // same contact limits as the trajectories they come from, and fingerprints use the campaign's species.
-  return { ...s.params, perturb: s.perturb, select: s.select, contacts: c.stages.simulate.contacts, species: c.species, holdout: c.holdout };
+  // The window is the campaign's, or its calibrated form when select.window.calibrate is on (../calibrate.ts).
+  const w = windowFor(ctx, ctx.round);
+  const select = { ...s.select, window: { lower: w.lower, upper: w.upper } };
+  return { ...s.params, perturb: s.perturb, select, contacts: c.stages.simulate.contacts, species: c.species, holdout: c.holdout };
 }
 
 export const sample: StageDef = {

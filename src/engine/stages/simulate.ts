@@ -15,7 +15,12 @@
  * where the committee is lost is what exploration is for; the next round's selection keeps them out of
  * labeling. Each condition's confident fraction, and its cut if any, go into the verdict's figures (for
  * convergence and `ratchet status`); a condition whose trajectory was cut cannot converge that round.
+ * And `trajectory` (held-to-ask.ts, src/gates/trajectory.ts) on every raw trajectory: frames and time span
+ * against the task's steps (a run that ends early fails, unless it ends at or after its cut), the mean
+ * temperature against the condition's and, for a pressure condition, the mean pressure against its pressure
+ * (figures conditions.<name>.mean_temperature_K, mean_pressure_bar).
  */
+import { dirname } from 'node:path';
 import { readFrames } from '../../atoms/xyz/reader.js';
 import { formatFrame } from '../../atoms/xyz/writer.js';
 import { checkCommittee } from '../../gates/committee.js';
@@ -23,8 +28,17 @@ import { checkContacts, type ContactsFigures } from '../../gates/contacts.js';
 import type { GateResult } from '../../gates/types.js';
 import type { GateRecord } from '../events.js';
 import { exists, writeFileAtomic } from '../fsutil.js';
+import { fmt } from '../../gates/verdict.js';
+import { simulateHeld } from './held-to-ask.js';
+import { stageRecord } from '../state.js';
+import { windowFor } from '../calibrate.js';
 import { artifactIds, combine, deriveSeed, modelInputs, runGate, stageOutputs, unique } from './common.js';
 import type { PlannedTask, StageContext, StageDef, StagePlan } from './types.js';
+
+/** The waiver of this round's validation, with the short runs' steps, when the round explores unvalidated. */
+function unvalidatedRun(ctx: StageContext): { steps: Record<string, number> } | undefined {
+  return stageRecord(ctx.state, ctx.round, 'validate')?.waived;
+}
 
 export const TRAJECTORY_OUTPUT = 'trajectory.xyz';
 /** The frames of a trajectory before its first contact violation (written only when there is one). */
@@ -39,6 +53,10 @@ export interface ConditionFigures {
   confident_fraction: number | null;
   /** Present when the trajectory was cut: its first contact violation, frames written and kept. */
   truncated?: Truncation;
+  /** Mean temperature over the run after equilibration (trajectory gate), null when it could not be measured. */
+  mean_temperature_K: number | null;
+  /** Pressure conditions: mean pressure (stress plus kinetic part), null when it could not be measured. */
+  mean_pressure_bar?: number | null;
 }
 
 export interface Truncation {
@@ -50,7 +68,7 @@ export interface Truncation {
 
 function contactOptions(ctx: StageContext) {
   const c = ctx.view.campaign.stages.simulate.contacts;
-  return { scale: c.scale, pairLimits: c.min_distance };
+  return { scale: c.scale, hydrogenScale: c.hydrogen_scale, pairLimits: c.min_distance };
 }
 
 /** First frame with a contact violation or non-finite positions, or null. */
@@ -74,7 +92,9 @@ export const simulate: StageDef = {
         condition: cond.name,
         temperature: cond.temperature,
         ...(cond.pressure !== undefined ? { pressure: cond.pressure } : {}),
-        steps: cond.steps,
+        // A round whose validation failed and was let go on explores with short runs (src/engine/unvalidated.ts).
+        steps: unvalidatedRun(ctx)?.steps[cond.name] ?? cond.steps,
+        ...(unvalidatedRun(ctx) ? { validated: false } : {}),
         timestep: cond.timestep,
         write_every: cond.write_every,
         committee: ctx.view.committee,
@@ -117,7 +137,8 @@ export const simulate: StageDef = {
 
   async gate(ctx) {
     const c = ctx.view.campaign;
-    const window = c.stages.sample.select.window;
+    // The campaign's window, or its calibrated form when select.window.calibrate is on (../calibrate.ts).
+    const window = windowFor(ctx, ctx.round);
     const gates: GateRecord[] = [];
     const conditions: Record<string, ConditionFigures> = {};
     const truncated: Truncation[] = [];
@@ -144,6 +165,10 @@ export const simulate: StageDef = {
       });
       gates.push(con);
       const { cut, written } = seen;
+      // Frames and time span against the steps asked, mean temperature and pressure (./held-to-ask.ts).
+      const cond = ctx.view.conditions.find((x) => x.name === t.name);
+      const held = cond ? await simulateHeld({ task: t.task, dir: dirname(t.path), path: t.path }, cond, cut) : undefined;
+      if (held) gates.push(held);
       const truncation: Truncation | undefined =
         cut === null ? undefined : { condition: t.name, first_violation_frame: cut, frames_written: written, frames_kept: cut };
       if (truncation) truncated.push(truncation);
@@ -173,15 +198,21 @@ export const simulate: StageDef = {
         runaway: bands?.runaway ?? 0,
         confident_fraction: bands && frames > 0 ? bands.confident / frames : null,
         ...(truncation ? { truncated: truncation } : {}),
+        mean_temperature_K: (held?.figures.mean_temperature_K as number | null | undefined) ?? null,
+        ...(cond?.pressure !== undefined ? { mean_pressure_bar: (held?.figures.mean_pressure_bar as number | null | undefined) ?? null } : {}),
       };
     }
     const summary = Object.entries(conditions)
       .map(
         ([name, f]) =>
           `${name}: ${f.frames} frames, ${f.confident} confident, ${f.informative} informative, ${f.runaway} runaway` +
-          (f.truncated ? ` (cut at frame ${f.truncated.first_violation_frame} by a contact)` : ''),
+          (f.truncated ? ` (cut at frame ${f.truncated.first_violation_frame} by a contact)` : '') +
+          (f.mean_temperature_K !== null ? `, mean ${fmt(f.mean_temperature_K)} K` : ', mean temperature not measured') +
+          (f.mean_pressure_bar !== undefined ? (f.mean_pressure_bar !== null ? `, mean ${fmt(f.mean_pressure_bar)} bar` : ', mean pressure not measured') : ''),
       )
       .join('; ');
-    return { ...combine(gates, truncated.length ? { conditions, truncated } : { conditions }), summary };
+    const figures: Record<string, unknown> = truncated.length ? { conditions, truncated } : { conditions };
+    if (window.ratio !== null) figures.window = window;
+    return { ...combine(gates, figures), summary };
   },
 };

@@ -5,20 +5,25 @@
  *               label's test.xyz) with the committee (model_0 ...), write predictions.xyz (same frames,
  *               same order, predicted `energy` and `forces`)
  *   nve-<cond>  kind "nve": constant-energy MD from the condition's start structure for nve_steps steps,
- *               write trajectory.xyz (with total_energy, or energy and velocities)
- * Gate: `errors` (energy and force RMSE against stages.validate.errors; MAE limits when given),
- * `drift` (|slope| against max_drift) and `contacts` on every constant-energy run.
+ *               write trajectory.xyz (with total_energy, or energy and velocities); a pressure condition
+ *               starts from a cell it reached (nve-start.ts: start.xyz in the task directory from round 1)
+ * Gate: `errors` (energy, force and stress figures against stages.validate.errors, forces per element too),
+ * `drift` (|slope| and its standard error against max_drift, run length against drift_min_frames/drift_min_span), `contacts` and `trajectory` (frames and time span against
+ * nve_steps, held-to-ask.ts) on every constant-energy run.
  */
+import { dirname } from 'node:path';
 import { checkContacts } from '../../gates/contacts.js';
 import { checkDrift } from '../../gates/drift.js';
 import { checkErrors } from '../../gates/errors.js';
-import { fmt } from '../../gates/verdict.js';
+import { driftGateOptions, errorsGateOptions } from './validate-limits.js';
 import type { GateRecord } from '../events.js';
 import { stageId } from '../ids.js';
 import { readJsonMaybe } from '../fsutil.js';
 import { artifactIds, combine, deriveSeed, modelInputs, runGate, stageOutputs, unique } from './common.js';
 import { labelFiles } from './label.js';
-import type { PlannedTask, StageDef, StagePlan } from './types.js';
+import { nveHeld } from './held-to-ask.js';
+import { nveStart } from './nve-start.js';
+import type { NewArtifact, PlannedTask, StageDef, StagePlan } from './types.js';
 
 export const ERRORS_TASK = 'errors';
 export const NVE_PREFIX = 'nve-';
@@ -44,18 +49,23 @@ export const validate: StageDef = {
         outputs: { predictions: { path: PREDICTIONS_OUTPUT, role: 'predictions' } },
       },
     ];
+    const artifacts: NewArtifact[] = [];
     for (const cond of ctx.view.conditions) {
-      const startId = ctx.artifactId(cond.start);
       const name = `${NVE_PREFIX}${cond.name}`;
+      // A pressure condition starts from a cell it reached (src/engine/stages/nve-start.ts).
+      const start = await nveStart(ctx, cond, name);
+      artifacts.push(...start.artifacts);
       tasks.push({
         name,
         seed: deriveSeed(cond.seed, `r${ctx.round}/validate/${name}`),
-        inputs: { ...models, start: { path: cond.start, artifact: startId } },
+        inputs: { ...models, start: start.input },
+        ...(Object.keys(start.files).length ? { files: start.files } : {}),
         params: {
           ...params,
           kind: 'nve',
           condition: cond.name,
           temperature: cond.temperature,
+          ...(start.pressure !== undefined ? { pressure: start.pressure } : {}),
           steps: v.nve_steps,
           timestep: v.nve_timestep ?? cond.timestep,
           write_every: cond.write_every,
@@ -65,7 +75,7 @@ export const validate: StageDef = {
       });
     }
     const inputs = unique(tasks.flatMap((t) => artifactIds(t.inputs)));
-    return { tasks, inputs, artifacts: [] };
+    return { tasks, inputs, artifacts };
   },
 
   async gate(ctx) {
@@ -78,23 +88,9 @@ export const validate: StageDef = {
       gates.push({ gate: 'errors', verdict: 'warn', reasons: ['no held-out frames yet: the errors were not measured'], figures: { frames: 0 }, task: pred?.task });
     } else {
       const rec = await runGate('errors', pred.task, () =>
-        checkErrors(labelFiles(ctx, ctx.round).test, pred.path, {
-          energyRmseFail: v.errors.energy_rmse,
-          energyRmseWarn: Number.POSITIVE_INFINITY,
-          forceRmseFail: v.errors.force_rmse,
-          forceRmseWarn: Number.POSITIVE_INFINITY,
-        }),
+        // The same limits and rules as `ratchet check errors` (src/gates/limits.ts), per element for forces.
+        checkErrors(labelFiles(ctx, ctx.round).test, pred.path, errorsGateOptions(v)),
       );
-      // MAE limits, when the campaign gives them, on the gate's own figures.
-      const f = rec.figures as { energy_mae_meV_per_atom?: number; force_mae_meV_per_A?: number };
-      if (v.errors.energy_mae !== undefined && typeof f.energy_mae_meV_per_atom === 'number' && f.energy_mae_meV_per_atom > v.errors.energy_mae) {
-        rec.verdict = 'fail';
-        rec.reasons.push(`energy MAE ${fmt(f.energy_mae_meV_per_atom)} meV/atom is above the limit ${fmt(v.errors.energy_mae)} meV/atom`);
-      }
-      if (v.errors.force_mae !== undefined && typeof f.force_mae_meV_per_A === 'number' && f.force_mae_meV_per_A > v.errors.force_mae) {
-        rec.verdict = 'fail';
-        rec.reasons.push(`force MAE ${fmt(f.force_mae_meV_per_A)} meV/Å is above the limit ${fmt(v.errors.force_mae)} meV/Å`);
-      }
       gates.push(rec);
     }
     const runs = stageOutputs(ctx, ctx.round, 'validate', NVE_OUTPUT).filter((o) => o.name.startsWith(NVE_PREFIX));
@@ -103,15 +99,20 @@ export const validate: StageDef = {
       const cond = c.conditions.find((k) => `${NVE_PREFIX}${k.name}` === r.name);
       const timestep = v.nve_timestep ?? cond?.timestep;
       const d = await runGate('drift', r.task, () =>
-        checkDrift([r.path], { timestep, slopeFail: v.max_drift, slopeWarn: Math.min(v.max_drift, 0.1) }),
+        checkDrift([r.path], driftGateOptions(v, timestep)),
       );
       gates.push(d);
       drift[r.name.slice(NVE_PREFIX.length)] = d.figures.slope_meV_per_atom_per_ps ?? null;
       gates.push(
         await runGate('contacts', r.task, () =>
-          checkContacts([r.path], { scale: v.contacts.scale, pairLimits: v.contacts.min_distance }),
+          checkContacts([r.path], { scale: v.contacts.scale, hydrogenScale: v.contacts.hydrogen_scale, pairLimits: v.contacts.min_distance }),
         ),
       );
+    }
+    // Each constant-energy run against the nve_steps asked: an early stop is named as such (src/gates/trajectory.ts).
+    for (const r of runs) {
+      const cond = ctx.view.conditions.find((k) => `${NVE_PREFIX}${k.name}` === r.name);
+      if (cond) gates.push(await nveHeld({ task: r.task, dir: dirname(r.path), path: r.path }, cond, v.nve_steps, v.nve_timestep ?? cond.timestep));
     }
     const errors = gates.find((g) => g.gate === 'errors');
     return combine(

@@ -145,7 +145,7 @@ describe('values on directive lines', () => {
     expect(() => slurmDirectives({ ...R, ...over } as Resources, 'j')).toThrow(/^resources\.(partition|account|qos): expected a name/);
   });
   it('refuses a multi-line extra directive', () => {
-    expect(() => slurmDirectives({ ...R, extra: ['--a\n--b'] }, 'j')).toThrow(/extra_directives\[0\]: expected one line/);
+    expect(() => slurmDirectives({ ...R, extra: ['--a\n--b'] }, 'j')).toThrow(/scheduler_lines\[0\]: expected one line/);
   });
   it('refuses bad numbers', () => {
     expect(() => slurmDirectives({ ...R, cpus: 0 }, 'j')).toThrow(/resources\.cpus/);
