@@ -20,6 +20,7 @@ import type { Output } from './output.js';
 import { materialize, taskSpec, writeTasks, type TaskJson } from './plan.js';
 import { describeOutcome, type RunResult } from './run.js';
 import type { SamplePolicy } from './sample-policy.js';
+import { projectRound, type RoundProjection } from './round-plan.js';
 import { STAGE_DEFS } from './stages/index.js';
 import { foldEvents, frontier, stageRecord, summarizeStage } from './state.js';
 import type { CampaignView } from './view.js';
@@ -76,43 +77,24 @@ export async function dryRun(o: DryRunOptions): Promise<RunResult> {
   }
   const sid = stageId(p.round, p.stage);
   const st = stageRecord(state, p.round, p.stage);
-  const command = view.stages[p.stage].command;
-  if (!st) {
-    const plan = await STAGE_DEFS[p.stage].plan(engine.stageContext(p.round));
-    const tasks = materialize(view, p.round, p.stage, plan, o.backend);
-    writeTasks(view, tasks, planRoot);
-    const builtin = tasks.some((t) => t.json.builtin);
-    out.line(`next step: plan and run ${sid}: ${tasks.length} task${tasks.length === 1 ? '' : 's'}${plan.notes?.length ? ` (${plan.notes.join('; ')})` : ''}`);
-    if (builtin) out.line(`  ratchet would run the built-in sample policy itself (no batch script)`);
-    else out.line(`  command: ${command}`);
-    listTasks(out, tasks.map((t) => t.id), view, p.stage, o.backend);
-    out.line(`scripts and task.json files: ${planRel}/`);
-    return { exitCode: 0 };
-  }
-  const sum = summarizeStage(st, { attempts: view.stages[p.stage].attempts });
-  switch (sum.phase) {
-    case 'ready':
-    case 'running': {
-      const toStart = sum.toStart;
-      for (const t of toStart) {
-        const dir = taskDirOf(engine, t);
-        const json = readJsonSync<TaskJson>(join(dir, TASK_FILE));
-        const target = join(planRoot, dir.slice(view.dir.length));
-        if (!json) {
-          out.line(`  ${t.id}: ${join(dir, TASK_FILE)} is missing; a run would plan it again`);
-          continue;
-        }
-        if (json.builtin) writeTasks(view, [{ name: t.name, id: t.id, dir, json, files: {} }], planRoot);
-        else writeTaskFilesSync(target, o.backend.render(taskSpec(view, json, dir)), json);
-      }
-      if (toStart.length > 0) {
-        out.line(`next step: start ${toStart.length} task(s) of ${sid}${command ? `: ${command}` : ''}`);
-        listTasks(out, toStart.map((t) => t.id), view, p.stage, o.backend);
-        out.line(`scripts and task.json files: ${planRel}/`);
-      }
-      if (sum.running.length > 0) out.line(`${sum.running.length} task(s) of ${sid} were started by an earlier run; a run would wait for them`);
+  const sum = st ? summarizeStage(st, { attempts: view.stages[p.stage].attempts }) : undefined;
+  if (!sum || sum.phase === 'ready' || sum.phase === 'running') {
+    // The rest of the round, planned in the plan folder (the built-in sample runs there for real).
+    const target = o.until ? untilPoint(o.until, p) : undefined;
+    const proj = await projectRound({
+      view,
+      backend: o.backend,
+      samplePolicy: o.samplePolicy,
+      ...(target && target.round === p.round ? { stopAt: target } : {}),
+    });
+    if (proj.nothing) {
+      out.line(proj.nothing);
       return { exitCode: 0 };
     }
+    showProjection(out, proj, view, o.backend);
+    return { exitCode: 0 };
+  }
+  switch (sum.phase) {
     case 'collect':
       out.line(`next step: register the outputs of ${sid} as artifacts and judge them with its gate (no task runs)`);
       return { exitCode: 0 };
@@ -121,7 +103,7 @@ export async function dryRun(o: DryRunOptions): Promise<RunResult> {
       const outcome: Outcome =
         sum.phase === 'failed'
           ? { kind: 'blocked', round: p.round, stage: p.stage, why: 'tasks', tasks: sum.failed.map((t) => t.id), reasons: sum.failed.map((t) => `${t.id}: ${t.attempts[t.attempts.length - 1].ended?.reason ?? 'failed'}`) }
-          : { kind: 'blocked', round: p.round, stage: p.stage, why: 'gate', tasks: [], reasons: st.gate?.reasons ?? [] };
+          : { kind: 'blocked', round: p.round, stage: p.stage, why: 'gate', tasks: [], reasons: st?.gate?.reasons ?? [] };
       for (const l of describeOutcome(outcome, o.campaignArg)) out.line(l);
       out.line(`nothing would run until then (ratchet retry ${shellQuote(o.campaignArg)} ${sid})`);
       return { exitCode: 1 };
@@ -132,11 +114,26 @@ export async function dryRun(o: DryRunOptions): Promise<RunResult> {
   }
 }
 
-function listTasks(out: Output, ids: string[], view: CampaignView, stage: CampaignView['stages'] extends Record<infer K, unknown> ? K : never, backend: Backend): void {
+/** What a round's plan prints: per stage the tasks and the files written for them, and the round's core-hours at most. */
+export function showProjection(out: Output, proj: RoundProjection, view: CampaignView, backend: Backend): void {
+  for (const st of proj.stages) {
+    const sid = stageId(st.round, st.stage);
+    const n = st.tasks.length;
+    const what = st.how === 'ran' ? 'ran the built-in sample in the plan folder' : st.how === 'to start' ? `would start ${n} task${n === 1 ? '' : 's'} planned by an earlier run` : `would plan and run ${n} task${n === 1 ? '' : 's'}`;
+    out.line(`${pad(sid)} ${what}${st.command && st.how !== 'ran' ? `: ${st.command}` : ''}`);
+    for (const note of st.notes) out.line(`  ${note}`);
+    if (st.how !== 'ran' && n > 0) listTasks(out, st.tasks, view, st.stage, backend);
+  }
+  if (proj.stoppedBecause) out.line(`not planned further: ${proj.stoppedBecause}`);
+  out.line(`the round's tasks may use at most ${proj.coreHoursAtMost.toFixed(1)} core-hours (walltime x cpus of each task; the budget is checked at submission)`);
+  out.line(`every file named above was written under ${proj.planRel}/ (the campaign's own folders are untouched)`);
+}
+
+function listTasks(out: Output, tasks: { id: string; script?: string }[], view: CampaignView, stage: CampaignView['stages'] extends Record<infer K, unknown> ? K : never, backend: Backend): void {
   const r = view.stages[stage].resources;
   out.line(`  backend ${backend.name}; each task: ${r.cpus} cpu(s), ${r.gpus} gpu(s)${r.memory_mb ? `, ${r.memory_mb} MiB` : ''}, walltime ${r.walltime_s} s`);
-  for (const id of ids.slice(0, SHOWN)) out.line(`  ${pad(id, 20)} rounds/${id}/run.sh`);
-  if (ids.length > SHOWN) out.line(`  ... and ${ids.length - SHOWN} more`);
+  for (const t of tasks.slice(0, SHOWN)) out.line(`  ${pad(t.id, 20)} ${t.script ?? '(built in)'}`);
+  if (tasks.length > SHOWN) out.line(`  ... and ${tasks.length - SHOWN} more`);
 }
 
 function readJsonSync<T>(p: string): T | undefined {

@@ -13,6 +13,8 @@ import { stageId, type Stage } from './ids.js';
 import { abs, taskDirRel } from './layout.js';
 import { taskJson, taskSpec } from './plan.js';
 import { STAGE_DEFS } from './stages/index.js';
+import { projectRound, type RoundProjection } from './round-plan.js';
+import { LedgerError } from '../ledger/journal.js';
 import { frontier, stageRecord, summarizeStage } from './state.js';
 
 export interface NextStep {
@@ -51,32 +53,51 @@ export async function nextStepSpecs(engine: Engine): Promise<NextStep | string> 
   return { round: p.round, stage: p.stage, specs };
 }
 
-/** Run the preflight of the next step, print it, record it; returns the exit code (1 with problems). */
+/**
+ * The preflight of a whole round, from wherever the campaign stands: every task of the round planned as a
+ * dry run plans it (./round-plan.ts: the built-in sample runs in the plan folder), every script checked by
+ * the backend's preflight (render, `bash -n`, and the scheduler's own check of each distinct request:
+ * sbatch --test-only, qsub -w v), the problems printed per stage and recorded as one 'preflight' event.
+ * Nothing is submitted. Returns the exit code (1 with problems).
+ */
 export async function preflightNextStep(engine: Engine): Promise<number> {
   const out = engine.out;
-  const next = await nextStepSpecs(engine);
-  if (typeof next === 'string') {
-    out.line(`preflight: ${next}`);
+  let proj: RoundProjection;
+  try {
+    proj = await projectRound({ view: engine.view, backend: engine.backend, samplePolicy: engine.samplePolicy });
+  } catch (err) {
+    if (err instanceof LedgerError) throw Object.assign(err, { exitCode: 2 });
+    throw err;
+  }
+  if (proj.nothing) {
+    out.line(`preflight: ${proj.nothing}`);
     return 0;
   }
-  const sid = stageId(next.round, next.stage);
-  if (next.specs.length === 0) {
-    out.line(`preflight: ${sid} has no batch script to check (ratchet runs it itself)`);
-    await engine.append({ type: 'preflight', round: next.round, stage: next.stage, backend: engine.backend.name, tasks: 0, scheduler_checks: 0, problems: [] });
+  const specs = proj.stages.flatMap((s) => s.specs);
+  const first = proj.stages[0];
+  const round = first?.round ?? 0;
+  const covered = proj.stages.map((s) => stageId(s.round, s.stage)).join(', ');
+  if (specs.length === 0) {
+    out.line(`preflight: ${covered || 'nothing'}: no batch script to check (ratchet runs the built-in sample itself)`);
+    if (proj.stoppedBecause) out.line(`not planned further: ${proj.stoppedBecause}`);
+    await engine.append({ type: 'preflight', round, stage: first?.stage ?? 'sample', stages: proj.stages.map((s) => s.stage), backend: engine.backend.name, tasks: 0, scheduler_checks: 0, problems: [] });
     return 0;
   }
-  const report: PreflightReport = await preflight(engine.backend, next.specs);
+  const report: PreflightReport = await preflight(engine.backend, specs);
   await engine.append({
     type: 'preflight',
-    round: next.round,
-    stage: next.stage,
+    round,
+    stage: first.stage,
+    stages: proj.stages.map((s) => s.stage),
     backend: report.backend,
     tasks: report.tasks,
     scheduler_checks: report.schedulerChecks,
     problems: report.problems,
   });
-  out.line(`preflight ${sid}: ${report.tasks} task(s), backend ${report.backend}, ${report.schedulerChecks} scheduler check(s)`);
+  out.line(`preflight of round ${round} (${covered}): ${report.tasks} task(s), backend ${report.backend}, ${report.schedulerChecks} scheduler check(s)`);
   out.line(`  ${report.note}`);
+  if (proj.stoppedBecause) out.line(`  not planned further: ${proj.stoppedBecause}`);
+  out.line(`  the round's tasks may use at most ${proj.coreHoursAtMost.toFixed(1)} core-hours; scripts in ${proj.planRel}/`);
   const byStage = problemsByStage(report);
   if (byStage.size === 0) {
     out.line(`no problems found; nothing was submitted`);

@@ -223,6 +223,12 @@ export async function runCampaign(opts: RunOptions): Promise<RunResult> {
     }
     // A new ledger (or one written before campaigns were recorded: adopted) is bound to this campaign file.
     if (!engine.state.identity) await engine.append(identityEvent(view, engine.state.events > 0));
+    // A preflight is recorded as one 'preflight' event, never as a run (status must not read it as a stopped run).
+    if (opts.preflight) {
+      out.line(`campaign ${view.name} (${opts.campaign}), backend ${backend.name}: preflight, nothing is submitted`);
+      exitCode = await preflightNextStep(engine);
+      return { exitCode };
+    }
     await engine.append({
       type: 'run_started',
       command: opts.retry !== undefined ? 'retry' : 'run',
@@ -230,7 +236,6 @@ export async function runCampaign(opts: RunOptions): Promise<RunResult> {
       jobs: (backend as { jobs?: number }).jobs ?? 0,
       ...((opts.stopBefore ?? opts.until) !== undefined ? { stop_before: opts.stopBefore ?? opts.until } : {}),
       ...(opts.stopAfter !== undefined ? { stop_after: opts.stopAfter } : {}),
-      ...(opts.preflight ? { preflight: true } : {}),
       ...(opts.allowOverBudget ? { allow_over_budget: true } : {}),
       host: hostname(),
       pid: process.pid,
@@ -241,11 +246,6 @@ export async function runCampaign(opts: RunOptions): Promise<RunResult> {
     const found = Object.entries(rec.ended).map(([s, n]) => `${n} ${s}`);
     if (found.length) out.line(`reconciled: ${found.join(', ')} since the last run`);
     if (rec.live) out.line(`${rec.live} task(s) of an earlier run still running; waiting for them`);
-    if (opts.preflight) {
-      exitCode = await preflightNextStep(engine);
-      await engine.append({ type: 'run_ended', outcome: exitCode === 0 ? 'stopped' : 'blocked', exit_code: exitCode });
-      return { exitCode };
-    }
     if (retryPlan) {
       const marks = await applyRetry(engine, retryPlan);
       if (marks.released.length) out.line(`released ${marks.released.length} held task(s): ${marks.released.join(', ')}`);

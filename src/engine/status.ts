@@ -18,6 +18,7 @@ import { identityProblem } from './identity.js';
 import { campaignView, type CampaignView } from './view.js';
 import { usage } from './attempts.js';
 import { describeHold } from './stop.js';
+import type { RoundCalibration } from './calibrate.js';
 import { shellQuote } from '../backends/shell.js';
 
 export interface StageStatus {
@@ -44,6 +45,10 @@ export interface RoundStatus {
   stages: StageStatus[];
   /** From the simulate gate: frames and bands per condition, with the confident fraction. */
   conditions?: Record<string, ConditionFigures>;
+  /** From the label gate (round 1 on): true force error / committee spread on the frames labeled (src/engine/calibrate.ts). */
+  calibration?: RoundCalibration;
+  /** The round's validation failed and it explored anyway (rounds.explore_unvalidated): it cannot converge. */
+  unvalidated?: { reason: string; at: string };
 }
 
 export interface StatusReport {
@@ -110,6 +115,10 @@ export function buildStatus(view: CampaignView, state: CampaignState, campaignAr
     const out: RoundStatus = { round: rr.round, stages };
     const sim = rr.stages.simulate?.gate?.figures?.conditions as Record<string, ConditionFigures> | undefined;
     if (sim) out.conditions = sim;
+    const cal = rr.stages.label?.gate?.figures?.calibration as RoundCalibration | undefined;
+    if (cal) out.calibration = cal;
+    const waived = rr.stages.validate?.waived;
+    if (waived) out.unvalidated = { reason: waived.reason, at: waived.at };
     return out;
   });
   const report: StatusReport = {
@@ -281,6 +290,23 @@ export function formatStatus(r: StatusReport, out: Output): void {
     }
     if (withConditions.some((rr) => Object.values(rr.conditions!).some((f) => f.truncated)))
       out.line('  cut: the trajectory was cut at its first contact violation; the fraction is over the frames kept, and the condition cannot converge that round');
+  }
+  const unvalidated = r.rounds.filter((rr) => rr.unvalidated);
+  if (unvalidated.length) {
+    out.line('');
+    out.line(`not validated: ${unvalidated.map((rr) => `r${rr.round}`).join(', ')} (validation failed; explored with short runs under rounds.explore_unvalidated; such a round cannot converge)`);
+  }
+  const calibrated = r.rounds.filter((rr) => rr.calibration && rr.calibration.frames > 0);
+  if (calibrated.length) {
+    out.line('');
+    out.line('spread calibration (true force error / committee spread on the frames labeled; 1 is honest, above 1 overconfident):');
+    for (const rr of calibrated) {
+      const c = rr.calibration!;
+      out.line(
+        `  r${rr.round}  models of r${c.models_round}: median ${c.median!.toFixed(2)}, 90th percentile ${c.p90!.toFixed(2)} over ${c.frames} frame(s); ` +
+          `error above spread on ${c.above_one}`,
+      );
+    }
   }
   formatCoreHours(r, out);
   out.line('');

@@ -18,7 +18,7 @@
  * any file below it changed size or mtime, or was added or removed). The result says how many
  * files were hashed.
  */
-import { createReadStream, promises as fsp } from 'node:fs';
+import { createReadStream, lstatSync, promises as fsp, readdirSync, statSync } from 'node:fs';
 import { createInterface } from 'node:readline';
 import { join } from 'node:path';
 import { createHash } from 'node:crypto';
@@ -170,9 +170,10 @@ interface Walked {
 
 /** Every regular file or link below root (relative '/' paths); with size and mtime when `stat` (else -1). */
 async function walk(root: string, prefix: string, out: Walked[], stat = true): Promise<void> {
+  // Synchronous directory reads and stats: several times faster than promises for many small calls.
   let items;
   try {
-    items = await fsp.readdir(join(root, prefix), { withFileTypes: true });
+    items = readdirSync(join(root, prefix), { withFileTypes: true });
   } catch {
     return;
   }
@@ -182,7 +183,7 @@ async function walk(root: string, prefix: string, out: Walked[], stat = true): P
     else if (it.isFile() || it.isSymbolicLink()) {
       if (!stat) out.push({ rel, size: -1, mtime: -1 });
       else {
-        const st = await fsp.lstat(join(root, rel)).catch(() => null);
+        const st = lstatSync(join(root, rel), { throwIfNoEntry: false });
         if (st) out.push({ rel, size: st.size, mtime: st.mtimeMs });
       }
     }
@@ -199,9 +200,12 @@ async function hashRegular(path: string, size: number): Promise<string> {
 
 /** Audit a campaign directory (the directory holding .ratchet/). */
 export async function auditCampaign(dir: string, opts: AuditOptions = {}): Promise<AuditResult> {
-  const byPath = new Map<string, ArtifactEvent>();
+  // Only what the audit needs of each registration (keeps memory and garbage collection small).
+  const byPath = new Map<string, Pick<ArtifactEvent, 'path' | 'id' | 'seq' | 'kind'>>();
   const ledger = await checkLedgerLines(ledgerPath(dir), (e) => {
-    if (e.type === 'artifact' && typeof e.path === 'string' && typeof e.id === 'string') byPath.set(e.path, e as unknown as ArtifactEvent);
+    if (e.type === 'artifact' && typeof e.path === 'string' && typeof e.id === 'string') {
+      byPath.set(e.path, { path: e.path, id: e.id, seq: e.seq as number, kind: e.kind as ArtifactEvent['kind'] });
+    }
   });
   const cache = opts.full ? { version: CACHE_VERSION, entries: {} as Record<string, CacheEntry> } : await readCache(dir);
   const old = cache.entries;
@@ -239,7 +243,7 @@ export async function auditCampaign(dir: string, opts: AuditOptions = {}): Promi
     while (next < jobs.length) {
       const a = jobs[next++];
       const abs = join(dir, a.path);
-      const st = await fsp.stat(abs).catch(() => null);
+      const st = statSync(abs, { throwIfNoEntry: false });
       if (!st) {
         res.missing.push({ path: a.path, id: a.id, seq: a.seq });
         continue;

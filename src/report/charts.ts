@@ -72,6 +72,8 @@ function spreadChart(d: ReportData): Chart {
   const caption =
     'Histogram of the kept frames\' spread (max over atoms of the per-atom committee force deviation), coloured by band; the dashed rules are the window\'s lower and upper edges: confident below, informative inside, runaway above.';
   if (!d.spreads.length) return none(id, title, caption, 'no committee spreads recorded yet');
+  const rounds = new Set(d.spreads.map((x) => x.round)).size;
+  if (rounds > MAX_HISTOGRAM_ROWS) return spreadHeatmap(d, id, title);
   return {
     id,
     title,
@@ -102,6 +104,67 @@ function spreadChart(d: ReportData): Chart {
         ],
       },
       resolve: { scale: { y: 'independent' } },
+    } as TopLevelSpec,
+  };
+}
+
+/** Above this many rounds the spread histograms become one heat map per condition (rows would not fit). */
+export const MAX_HISTOGRAM_ROWS = 8;
+
+function spreadHeatmap(d: ReportData, id: string, title: string): Chart {
+  const caption =
+    'Distribution of the kept frames\' spread (max over atoms of the per-atom committee force deviation) per condition and round: each column is one round\'s histogram, its shade the number of frames in the bin; the dashed lines are the window\'s lower and upper edges: confident below, informative between, runaway above.';
+  const edges = d.windows.flatMap((w) => [
+    { round: w.round, edge: w.lower, label: 'lower edge' },
+    { round: w.round, edge: w.upper, label: 'upper edge' },
+  ]);
+  const rows = d.spreads.map((x) => ({ round: x.round, condition: x.condition, spread_eV_per_A: x.spread_eV_per_A }));
+  const last = d.windows[d.windows.length - 1];
+  const bands = last
+    ? [
+        { text: 'confident', y: last.lower / 2 },
+        { text: 'informative', y: (last.lower + last.upper) / 2 },
+        { text: 'runaway', y: last.upper * 1.08 },
+      ].flatMap((b) => d.conditions.map((c) => ({ round: last.round, condition: c, spread_eV_per_A: b.y, kind: 'band', text: b.text })))
+    : [];
+  return {
+    id,
+    title,
+    caption,
+    spec: {
+      $schema: 'https://vega.github.io/schema/vega-lite/v6.json',
+      facet: { column: { field: 'condition', type: 'nominal', title: 'condition' } },
+      data: { values: rows.map((r) => ({ ...r, kind: 'frame' })).concat(edges.flatMap((e) => d.conditions.map((c) => ({ round: e.round, condition: c, spread_eV_per_A: e.edge, kind: e.label }))))
+          .concat(bands as never[]) },
+      spec: {
+        width: 260,
+        height: 220,
+        layer: [
+          {
+            transform: [{ filter: "datum.kind === 'frame'" }],
+            mark: 'rect',
+            encoding: {
+              x: { field: 'round', type: 'quantitative', bin: { step: 1 }, title: 'round' },
+              y: { field: 'spread_eV_per_A', type: 'quantitative', bin: { maxbins: 30 }, title: 'spread (eV/Å)' },
+              color: { aggregate: 'count', type: 'quantitative', title: 'frames', scale: { scheme: 'blues' } },
+            },
+          },
+          {
+            transform: [{ filter: "datum.kind === 'lower edge' || datum.kind === 'upper edge'" }],
+            mark: { type: 'line', strokeDash: [4, 3], color: 'black', interpolate: 'step-after' },
+            encoding: {
+              x: { field: 'round', type: 'quantitative' },
+              y: { field: 'spread_eV_per_A', type: 'quantitative' },
+              detail: { field: 'kind' },
+            },
+          },
+          {
+            transform: [{ filter: "datum.kind === 'band'" }],
+            mark: { type: 'text', align: 'right', dx: -2, fontWeight: 'bold' },
+            encoding: { x: { field: 'round', type: 'quantitative' }, y: { field: 'spread_eV_per_A', type: 'quantitative' }, text: { field: 'text' } },
+          },
+        ],
+      },
     } as TopLevelSpec,
   };
 }

@@ -14,7 +14,7 @@ import { existsSync } from 'node:fs';
 import { join, isAbsolute } from 'node:path';
 import type { LedgerEvent } from '../ledger/journal.js';
 import type { ArtifactEvent } from '../ledger/artifacts.js';
-import { lineageGraph, upstream, type LineageNode } from '../ledger/lineage.js';
+import { lineageGraph } from '../ledger/lineage.js';
 import { readFrames } from '../atoms/xyz/reader.js';
 import { checkCommittee } from '../gates/committee.js';
 import type { StatusReport } from '../engine/status.js';
@@ -363,7 +363,10 @@ async function readEnergyTrace(file: string, maxPoints: number): Promise<{ time_
   return pts;
 }
 
-/** The upstream graph of the latest committee's models, laid out in layers (layer 0 = the models). */
+/**
+ * The upstream graph of the latest committee's models, laid out in layers (layer 0 = the models):
+ * breadth-first from the models over recorded inputs and frame sources, the `maxNodes` nearest kept.
+ */
 export function committeeLineage(events: LedgerEvent[], maxNodes: number): ReportData['lineage'] {
   const g = lineageGraph(events);
   let round: number | null = null;
@@ -381,33 +384,36 @@ export function committeeLineage(events: LedgerEvent[], maxNodes: number): Repor
   }
   const nodes = new Map<string, { id: string; role: string; path: string; layer: number; row: number }>();
   const edges: { from: string; to: string }[] = [];
-  const edgeSeen = new Set<string>();
   let truncated = false;
-  // Breadth-first over the upstream trees, so the nodes nearest the committee are kept when cut.
-  const queue: { node: LineageNode; layer: number }[] = [];
-  for (const m of models) {
-    const t = upstream(g, m.id);
-    if (t) queue.push({ node: t, layer: 0 });
-  }
-  while (queue.length) {
-    const { node, layer } = queue.shift()!;
-    if (!nodes.has(node.id)) {
+  let frontier = models.map((m) => m.id).filter((id, i, all) => all.indexOf(id) === i);
+  for (let layer = 0; frontier.length && !truncated; layer++) {
+    const next: string[] = [];
+    for (const id of frontier) {
+      if (nodes.has(id)) continue;
       if (nodes.size >= maxNodes) {
         truncated = true;
-        continue;
+        break;
       }
-      nodes.set(node.id, { id: node.id, role: node.role ?? 'not recorded', path: node.path ?? node.id.slice(0, 19), layer, row: 0 });
-    } else if (nodes.get(node.id)!.layer < layer) nodes.get(node.id)!.layer = layer;
-    for (const c of node.children) {
-      const key = `${c.id}>${node.id}`;
-      if (!edgeSeen.has(key)) {
-        edgeSeen.add(key);
-        edges.push({ from: c.id, to: node.id });
+      const a = g.byId.get(id);
+      nodes.set(id, { id, role: a?.role ?? 'not recorded', path: a?.path ?? id.slice(0, 19), layer, row: 0 });
+      if (!a) continue;
+      const ins = [...(Array.isArray(a.inputs) ? a.inputs : []), ...(Array.isArray(a.frame_sources) ? a.frame_sources : [])];
+      for (const i of new Set(ins)) {
+        if (typeof i !== 'string') continue;
+        edges.push({ from: i, to: id });
+        next.push(i);
       }
-      if (!c.ref) queue.push({ node: c, layer: layer + 1 });
     }
+    frontier = next;
   }
-  const kept = edges.filter((e) => nodes.has(e.from) && nodes.has(e.to));
+  if (frontier.some((id) => !nodes.has(id))) truncated = true;
+  const seen = new Set<string>();
+  const kept = edges.filter((e) => {
+    const key = `${e.from}>${e.to}`;
+    if (!nodes.has(e.from) || !nodes.has(e.to) || seen.has(key)) return false;
+    seen.add(key);
+    return true;
+  });
   const rows = new Map<number, number>();
   for (const n of nodes.values()) {
     n.row = rows.get(n.layer) ?? 0;

@@ -4,7 +4,11 @@
  * that is running or blocked and shows what there is.
  */
 import { readLedger, LedgerError } from '../ledger/journal.js';
-import { campaignStatus } from '../engine/status.js';
+import { buildStatus } from '../engine/status.js';
+import { foldEvents } from '../engine/state.js';
+import { campaignView } from '../engine/view.js';
+import { identityProblem } from '../engine/identity.js';
+import { CampaignError, loadCampaign } from '../campaign/load.js';
 import { collectReport, type CollectOptions, type ReportData } from './data.js';
 import { reportCharts, renderSvg } from './charts.js';
 import { renderHtml, type RenderedChart } from './html.js';
@@ -30,17 +34,27 @@ export interface ReportOptions extends CollectOptions {
 
 /** Build the report of a campaign file. Throws ReportError naming the file for bad input. */
 export async function buildReport(campaignFile: string, opts: ReportOptions = {}): Promise<Report> {
-  const errors: string[] = [];
-  const st = await campaignStatus(campaignFile, (m) => errors.push(m));
-  if (!st.report) throw new ReportError(errors.join('\n') || `${campaignFile}: cannot read the campaign`);
-  let events;
+  // The ledger is read once: folded into the state `ratchet status` shows, and kept for the figures.
+  let view;
   try {
-    events = (await readLedger(st.report.campaign.dir)).events;
+    view = campaignView(await loadCampaign(campaignFile, { checkFiles: false }));
+  } catch (err) {
+    if (err instanceof CampaignError) throw new ReportError(err.message);
+    throw err;
+  }
+  let events, torn;
+  try {
+    ({ events, torn } = await readLedger(view.dir));
   } catch (err) {
     if (err instanceof LedgerError) throw new ReportError(err.message);
     throw err;
   }
-  const data = await collectReport(st.report, events, opts);
+  const state = foldEvents(events);
+  const other = identityProblem(view, state.identity);
+  if (other) throw new ReportError(other);
+  const status = buildStatus(view, state, campaignFile);
+  if (torn) status.ledger.torn_line = torn.line;
+  const data = await collectReport(status, events, opts);
   const charts: RenderedChart[] = [];
   for (const c of reportCharts(data)) {
     charts.push({ id: c.id, title: c.title, caption: c.caption, svg: c.spec ? await renderSvg(c.spec) : null, ...(c.empty ? { empty: c.empty } : {}) });

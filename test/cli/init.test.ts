@@ -91,6 +91,16 @@ describe('ratchet init: a target it cannot create is refused at once', () => {
     expect(existsSync(target)).toBe(false);
   });
 
+  it('--example into /proc/x', () => {
+    const r = spawnSync(process.execPath, ['--import', join(ROOT, 'node_modules/tsx/dist/esm/index.mjs'), join(ROOT, 'src/cli/index.ts'), 'init', '--example', 'water-xtb', '/proc/x'], {
+      cwd: dir,
+      encoding: 'utf8',
+      timeout: 60_000,
+    });
+    expect(r.status).toBe(2);
+    expect(r.stderr).toBe('ratchet: /proc/x: is under /proc, a kernel file system that cannot hold a campaign; choose a directory on a disk\n');
+  });
+
   // Permission bits do not bind root, so this one runs only for an ordinary user.
   it.skipIf(process.getuid?.() === 0)('a directory without write permission', () => {
     const locked = join(dir, 'locked');

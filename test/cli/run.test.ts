@@ -27,7 +27,8 @@ describe('ratchet run', () => {
     const { dir, file } = makeCampaign();
     const r = ratchet(['run', file, '--dry-run']);
     expect(r.status).toBe(0);
-    expect(r.stdout).toContain('next step: plan and run r0/sample: 1 task');
+    expect(r.stdout).toContain('r0/sample    ran the built-in sample in the plan folder');
+    expect(r.stdout).toContain('r0/simulate  would plan and run 2 tasks');
     expect(existsSync(join(dir, '.ratchet/ledger.jsonl'))).toBe(false);
   });
 

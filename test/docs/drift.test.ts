@@ -257,6 +257,14 @@ describe('campaign keys', () => {
     expect(missing).toEqual([]);
   });
 
+  it('docs/campaign.md names no key the campaign does not have', () => {
+    const known = new Set(keys.flatMap((k) => suffixes(k.path)));
+    // Sections are keys too (`backend`, `budget`), and their dotted forms (`resources.partition`).
+    for (const k of keys) for (const s of suffixes(k.path)) for (let i = 1; i < s.split('.').length; i++) known.add(s.split('.').slice(0, i).join('.'));
+    const stale = [...new Set(documentedKeys)].filter((d) => !known.has(d)).map((d) => `docs/campaign.md: a key table lists \`${d}\`, which is not a campaign key; remove or rename the row`);
+    expect(stale).toEqual([]);
+  });
+
   it('docs/campaign.md shows each single-valued default as the schema has it', () => {
     const wrong: string[] = [];
     let compared = 0;
@@ -278,5 +286,18 @@ describe('campaign keys', () => {
     }
     expect(wrong).toEqual([]);
     expect(compared).toBeGreaterThan(30); // the rows were found: this check is not empty
+  });
+});
+
+// ---------------------------------------------------------------------------------------------
+// The library entry point
+
+describe("docs/library.md: what `import from 'ratchet'` gives", () => {
+  it('every name in the table is exported by src/index.ts', async () => {
+    const lib = (await import('../../src/index.js')) as Record<string, unknown>;
+    const rows = tableAfter('docs/library.md', /^## Using ratchet as a library/);
+    const names = rows.flatMap((r) => ticked(r[0]!)).filter((n) => /^[A-Za-z_]\w*$/.test(n) && n !== 'Frame'); // Frame is a type
+    expect(names.length).toBeGreaterThan(30);
+    expect(names.filter((n) => !(n in lib)).map((n) => `docs/library.md: ${n} is listed under "Using ratchet as a library" but src/index.ts does not export it`)).toEqual([]);
   });
 });

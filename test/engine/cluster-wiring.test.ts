@@ -210,14 +210,17 @@ describe('cluster paths on a fake Slurm', () => {
     writeFileSync(join(fake, 'reject'), '');
     const r = await run(file, { preflight: true });
     expect(r.exitCode).toBe(1);
-    expect(r.text).toContain('preflight r0/label: 3 task(s), backend slurm, 3 scheduler check(s)');
+    // The whole round from r0/label on: 3 label, 2 train, 3 validate, 2 simulate tasks, each checked by the scheduler.
+    expect(r.text).toContain('preflight of round 0 (r0/label, r0/train, r0/validate, r0/simulate): 10 task(s), backend slurm, 10 scheduler check(s)');
     expect(r.text).toContain('r0/label: scheduler: slurm rejects the request of r0/label/0000: sbatch: error: invalid partition specified: nosuchpartition');
     expect(r.text).toContain('nothing was submitted');
     const ev = ledgerEvents(dir);
     const pf = ev.find((e) => e.type === 'preflight');
-    expect(pf).toMatchObject({ round: 0, stage: 'label', backend: 'slurm', tasks: 3, scheduler_checks: 3 });
-    expect(pf!.problems).toHaveLength(3);
-    expect(ev.filter((e) => e.type === 'run_started').at(-1)).toMatchObject({ preflight: true });
+    expect(pf).toMatchObject({ round: 0, stage: 'label', stages: ['label', 'train', 'validate', 'simulate'], backend: 'slurm', tasks: 10, scheduler_checks: 10 });
+    expect(pf!.problems).toHaveLength(10);
+    // A preflight is not a run: status must not read it as a stopped run.
+    expect(ev.filter((e) => e.type === 'run_started').every((e) => e.preflight === undefined)).toBe(true);
+    expect(ev.at(-1)!.type).toBe('preflight');
     expect(ev.filter((e) => e.type === 'stage_planned' && e.stage === 'label')).toEqual([]);
     expect(ev.filter((e) => e.type === 'task_submitted' && String(e.task).startsWith('r0/label'))).toEqual([]);
     expect(calls().every((c) => c.startsWith('sbatch --test-only') || c.startsWith('squeue'))).toBe(true);

@@ -15,6 +15,12 @@ import { BufferOutput } from '../../src/engine/output.js';
 import { runCampaign } from '../../src/engine/run.js';
 import { unvalidatedSteps } from '../../src/engine/unvalidated.js';
 import { ledgerEvents, makeCampaign, removeCampaigns } from './fixture.js';
+import { buildStatus, formatStatus } from '../../src/engine/status.js';
+import { foldEvents } from '../../src/engine/state.js';
+import { campaignView } from '../../src/engine/view.js';
+import { loadCampaign } from '../../src/campaign/load.js';
+import type { Campaign } from '../../src/campaign/schema.js';
+import type { LedgerEvent } from '../../src/ledger/journal.js';
 
 afterAll(removeCampaigns);
 
@@ -36,7 +42,9 @@ describe('a round whose validation fails explores when the campaign allows it', 
   let exitCode = -1;
   let events: Record<string, any>[] = [];
 
+  let loadedCampaign: Campaign | undefined;
   beforeAll(async () => {
+    loadedCampaign = (await loadCampaign(c.file)).campaign;
     const r = await runCampaign({ campaign: c.file, out, error: (m) => out.line(`error: ${m}`) });
     exitCode = r.exitCode;
     events = ledgerEvents(c.dir);
@@ -47,8 +55,10 @@ describe('a round whose validation fails explores when the campaign allows it', 
     expect(gated.verdict).toBe('fail');
     const waived = events.filter((e) => e.type === 'validation_waived');
     expect(waived[0]).toMatchObject({ round: 0, in_a_row: 1 });
-    // Steps: half of each condition's 10 steps, in whole multiples of write_every (10): at least one interval.
-    expect(waived[0].steps).toEqual({ cold: unvalidatedSteps(10, 10, 0.5), warm: unvalidatedSteps(10, 10, 0.5) });
+    // Steps: half of each condition's 10 steps, in whole multiples of write_every: at least one interval.
+    const every = loadedCampaign!.conditions.map((k) => k.write_every);
+    expect(waived[0].steps).toEqual({ cold: unvalidatedSteps(10, every[0], 0.5), warm: unvalidatedSteps(10, every[1], 0.5) });
+    expect(waived[0].steps.cold).toBeLessThan(10);
     const task = JSON.parse(readFileSync(join(c.dir, 'rounds/r0/simulate/cold/task.json'), 'utf8'));
     expect(task.params).toMatchObject({ steps: waived[0].steps.cold, validated: false });
     const judged = events.find((e) => e.type === 'round_judged' && e.round === 0)!;
@@ -103,6 +113,14 @@ print(json.dumps({'n': len(ratios), 'median': float(np.quantile(ratios, 0.5)), '
       if (String(err).includes('import ase, numpy')) console.warn('ASE/NumPy not available: calibration cross-check skipped');
       else throw err;
     }
+    // status shows it, text and JSON alike
+    const st = buildStatus(campaignView({ campaign: loadedCampaign!, dir: c.dir, file: c.file, sha256: '' }), foldEvents(events as LedgerEvent[]), c.file);
+    expect(st.rounds[1].calibration).toMatchObject({ frames: cal.frames, median: cal.median, p90: cal.p90 });
+    expect(st.rounds[0].unvalidated?.reason).toContain('rounds.explore_unvalidated');
+    const text = new BufferOutput();
+    formatStatus(st, text);
+    expect(text.text).toContain('not validated: r0');
+    expect(text.text).toMatch(/r1 {2}models of r0: median \d+\.\d\d, 90th percentile/);
     if (ref) {
       expect(cal.frames).toBe(ref.n);
       expect(cal.median).toBeCloseTo(ref.median, 6);
@@ -121,4 +139,13 @@ describe('without the setting a failed validation blocks the round', () => {
     expect(out.text).toContain('r0/validate is blocked by its gate');
     expect(ledgerEvents(c.dir).some((e) => e.type === 'validation_waived')).toBe(false);
   }, 240_000);
+});
+
+describe('unvalidatedSteps', () => {
+  it('keeps whole write intervals, at least one, never more than asked', () => {
+    expect(unvalidatedSteps(1000, 10, 0.1)).toBe(100);
+    expect(unvalidatedSteps(1000, 10, 0.001)).toBe(10);
+    expect(unvalidatedSteps(1000, 30, 0.1)).toBe(90);
+    expect(unvalidatedSteps(5, 10, 0.5)).toBe(5);
+  });
 });

@@ -130,6 +130,7 @@ describe.skipIf(missing.length > 0)('the water-xtb example', () => {
         [/perturb: \{ count: 40,/, 'perturb: { count: 30,'],
         [/max_per_condition: 15/, 'max_per_condition: 10'],
         [/equilibration_steps: 1000/, 'equilibration_steps: 400'],
+        [/confident_fraction: 0\.95/, 'confident_fraction: 0.9'],
       ];
       for (const [re, to] of edits) {
         if (!re.test(text)) throw new Error(`examples/water-xtb/campaign.yaml no longer has ${re}: update this test`);

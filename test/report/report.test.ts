@@ -189,3 +189,17 @@ print(json.dumps(out))`;
     expect(CHROMIUM).toBeUndefined();
   });
 });
+
+describe('the report of a campaign that has not run yet', () => {
+  it('is written, with every chart saying why it has no data', async () => {
+    const { file } = makeCampaign();
+    const r = await buildReport(file);
+    expect(r.charts.length).toBe(11);
+    for (const c of r.charts) {
+      expect(c.svg).toBeNull();
+      expect(c.empty).toMatch(/yet/);
+      expect(r.html).toContain(`data-chart="${c.id}" data-empty="true"`);
+    }
+    expect(r.data.state).toBe('at r0/sample');
+  });
+});

@@ -118,6 +118,22 @@ describe.skipIf(!slurmInstalled)('campaigns on a real Slurm 22.05', () => {
     expect(sched.size).toBe(subs.length);
   }, 600_000);
 
+  it('--preflight on a fresh campaign checks the whole round: a bad partition in the train stage is named, exit 1, nothing queued', async () => {
+    const name = `pf${TAG}`;
+    const c = fakeCampaign(name, '  poll_interval: 1\n', (y) => y.replace(/(  train:\n)/, '$1    resources:\n      partition: nosuchpartition\n'));
+    const r = await cli(['run', c.file, '--backend', 'slurm', '--preflight']);
+    expect(r.exitCode, String(r.all)).toBe(1);
+    expect(String(r.stdout)).toContain('preflight of round 0 (r0/sample, r0/label, r0/train, r0/validate, r0/simulate)');
+    expect(String(r.stdout)).toMatch(/r0\/train: scheduler: slurm rejects the request of r0\/train\/0000: .*invalid partition/i);
+    expect(String(r.stdout)).not.toMatch(/r0\/(label|validate|simulate): scheduler/);
+    expect(schedulerRecords(name)).toEqual([]);
+    expect(submitted(c.dir)).toEqual([]);
+    expect(existsSync(join(c.dir, 'rounds'))).toBe(false);
+    const ev = ledgerEvents(c.dir);
+    expect(ev.some((e) => e.type === 'run_started')).toBe(false);
+    expect(ev.find((e) => e.type === 'preflight')).toMatchObject({ round: 0, stage: 'sample', stages: ['sample', 'label', 'train', 'validate', 'simulate'], tasks: 6 + 2 + 3 + 2 });
+  });
+
   it('never submits a task twice when ratchet run is killed (SIGKILL) while jobs are queued', async () => {
     const name = `kill${TAG}`;
     const c = fakeCampaign(name, '  poll_interval: 1\n  array_throttle: 2\n');
