@@ -191,7 +191,7 @@ const time = async <T>(f: () => Promise<T>): Promise<[T, number]> => {
 };
 const [rep, repS] = await time(() => buildReport(join(dir, 'campaign.yaml')));
 writeFileSync(join(dir, 'report.html'), rep.html);
-const [a1, a1S] = await time(() => auditCampaign(dir));
+const [a1, a1S] = await time(() => auditCampaign(dir, { full: true }));
 const [a2, a2S] = await time(() => auditCampaign(dir));
 for (let k = 0; k < 10; k++) appendFileSync(join(dir, `rounds/r${k % ROUNDS}/label/${String(k).padStart(4, "0")}/labeled.xyz`), "x");
 const [a3, a3S] = await time(() => auditCampaign(dir));

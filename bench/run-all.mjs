@@ -15,6 +15,7 @@ const benches = {
   ledger: ['bench/ledger.mjs'],
   render: [...tsx, 'bench/render.ts'],
   engine: [...tsx, 'bench/engine.ts'],
+  report: [...tsx, 'bench/report-audit.ts'],
   scheduler: [...tsx, 'bench/scheduler-calls.ts'],
   // needs Slurm installed (bash test/slurm/cluster.sh install); starts and stops the test cluster itself
   slurm: [...tsx, 'bench/slurm-latency.ts'],

@@ -11,8 +11,9 @@ import { register as task } from './task.js';
 import { register as report } from './report.js';
 import { register as audit } from './audit.js';
 import { register as exportBundle } from './export.js';
+import { register as revisions } from './revisions.js';
 
 /** Every subcommand, one file each under src/cli/. */
 export function registerCommands(program: Command): void {
-  for (const register of [init, schema, run, status, retry, stop, task, lineage, check, report, audit, exportBundle]) register(program);
+  for (const register of [init, schema, run, status, retry, stop, task, lineage, check, report, audit, exportBundle, revisions]) register(program);
 }

@@ -26,8 +26,10 @@ export function register(program: Command): void {
     .option('--preflight', "check the next step's scripts (bash -n, and the scheduler's own check such as sbatch --test-only) and report problems per stage; submits nothing")
     .option('--allow-over-budget', 'submit even when the core-hour estimate exceeds budget.core_hours or budget.core_hours_per_round (recorded in the ledger)')
     .option('--follow', 'on a cluster backend, keep polling until the stage\'s tasks end (local always waits)')
+    .option('--accept-revision', 'the campaign file changed settings that labels already made depend on: keep those labels and go on (recorded in the ledger)')
+    .option('--relabel', 'the campaign file changed settings that labels already made depend on: label those frames again in the next label stage and drop the earlier labels from the data sets (recorded in the ledger)')
     .addHelpText('after', '\nHeld tasks (stopped by ratchet stop, or cancelled with the scheduler\'s own command) are never started again by run: release them with ratchet retry CAMPAIGN TASK|STAGE.\nExit codes: 0 finished or advanced, 1 blocked by a gate, failed or held tasks, 2 bad input, 130 interrupted.')
-    .action(async (campaign: string, o: { backend?: string; jobs?: string; stopBefore?: string; stopAfter?: string; until?: string; dryRun?: boolean; follow?: boolean; preflight?: boolean; allowOverBudget?: boolean }) => {
+    .action(async (campaign: string, o: { backend?: string; jobs?: string; stopBefore?: string; stopAfter?: string; until?: string; dryRun?: boolean; follow?: boolean; preflight?: boolean; allowOverBudget?: boolean; acceptRevision?: boolean; relabel?: boolean }) => {
       if (o.until !== undefined) {
         process.stderr.write(untilRenamed('run'));
         process.exitCode = 2;
@@ -44,6 +46,8 @@ export function register(program: Command): void {
         follow: o.follow,
         preflight: o.preflight,
         allowOverBudget: o.allowOverBudget,
+        acceptRevision: o.acceptRevision,
+        relabel: o.relabel,
         handleSignals: true,
       });
       process.exitCode = r.exitCode;

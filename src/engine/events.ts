@@ -250,6 +250,44 @@ export interface ValidationWaivedEvent {
   steps: Record<string, number>;
 }
 
+/**
+ * The campaign file's content changed since the revision in force (or is seen for the first time). Its
+ * bytes are kept in `.ratchet/revisions/<sha256>.yaml`, written before this event.
+ */
+export interface CampaignRevisionEvent {
+  type: 'campaign_revision';
+  sha256: string;
+  /** 1, 2, ... in ledger order. */
+  number: number;
+  /** The revision in force before (absent for the first). */
+  previous?: string;
+  /** Key paths that differ from `previous` (parsed, defaults filled in); empty for the first. */
+  changes: { path: string; old?: unknown; new?: unknown }[];
+  /** Paths (of `changes`, or against `compared_with`) that affect data already made. */
+  affects_data: string[];
+  /** The round at which the revision came into force (the first stage not yet passed). */
+  round: number;
+  /** `affects_data` was measured against this revision (the last settled one) instead of `previous`. */
+  compared_with?: string;
+  /** Rounds already had labels: no run goes on until a person decides (revision_decided). */
+  decision_needed?: true;
+  /** Why the changes could not be worked out (the previous revision's copy is missing or unreadable). */
+  unknown?: string;
+}
+
+/** A person's choice on a revision that affects data already made: keep the labels, or label them again. */
+export interface RevisionDecidedEvent {
+  type: 'revision_decided';
+  sha256: string;
+  choice: 'accept' | 'relabel';
+  /** The user name of the person who chose (os.userInfo()). */
+  by: string;
+  /** The round whose label stage relabels (relabel), or the round in force when accepted. */
+  round: number;
+  /** The rounds whose labels are relabeled (relabel only). */
+  rounds?: number[];
+}
+
 export type EngineEvent =
   | RunStartedEvent
   | RunEndedEvent
@@ -268,6 +306,8 @@ export type EngineEvent =
   | CampaignResumedEvent
   | CampaignIdentityEvent
   | ValidationWaivedEvent
+  | CampaignRevisionEvent
+  | RevisionDecidedEvent
   | ArtifactEvent;
 
 export type { ExitRecord };

@@ -25,6 +25,7 @@ import { samplePolicy as defaultPolicy, type SamplePolicy } from './sample-polic
 import { foldEvents } from './state.js';
 import { applyStopRequests } from './stop.js';
 import { identityEvent, identityProblem, readIdentity } from './identity.js';
+import { revisionFlagsProblem, revisionStep } from './revisions.js';
 import { campaignView, type CampaignView } from './view.js';
 
 export interface RunOptions {
@@ -54,6 +55,10 @@ export interface RunOptions {
   preflight?: boolean;
   /** Submit even when the core-hour budget would be exceeded (recorded as budget_overridden). */
   allowOverBudget?: boolean;
+  /** Keep the labels made before a campaign revision that affects them, and go on (recorded as revision_decided). */
+  acceptRevision?: boolean;
+  /** Label the frames of a revision's affected rounds again in the next label stage (recorded as revision_decided). */
+  relabel?: boolean;
   /** Replace the sample policy (tests). */
   samplePolicy?: SamplePolicy;
 }
@@ -75,6 +80,11 @@ export async function prepare(
 ): Promise<{ view: CampaignView; backend: Backend; until?: Until } | number> {
   let until: Until | undefined;
   const before = opts.stopBefore ?? opts.until;
+  const flags = revisionFlagsProblem(opts);
+  if (flags) {
+    error(flags);
+    return 2;
+  }
   if (before !== undefined && opts.stopAfter !== undefined) {
     error('--stop-before and --stop-after: choose one');
     return 2;
@@ -229,6 +239,10 @@ export async function runCampaign(opts: RunOptions): Promise<RunResult> {
       exitCode = await preflightNextStep(engine);
       return { exitCode };
     }
+    // A new version of the campaign file is recorded (campaign_revision); one that changes what data already
+    // made depends on stops the run until a person chooses (src/engine/revisions.ts).
+    const stop = await revisionStep(engine, { campaignArg: opts.campaign, acceptRevision: opts.acceptRevision, relabel: opts.relabel }, error);
+    if (stop !== undefined) return { exitCode: stop };
     await engine.append({
       type: 'run_started',
       command: opts.retry !== undefined ? 'retry' : 'run',

@@ -68,6 +68,22 @@ export interface StageRecord {
    * explores but is not validated and never counts toward convergence. Cleared with the verdict.
    */
   waived?: { reason: string; at: string; steps: Record<string, number> };
+  /** The campaign revision in force when the stage was planned (absent before revisions were recorded). */
+  revision?: number;
+}
+
+/** One recorded version of the campaign file (campaign_revision), with the person's decision when one was asked. */
+export interface RevisionRecord {
+  sha256: string;
+  number: number;
+  previous?: string;
+  changes: { path: string; old?: unknown; new?: unknown }[];
+  affects_data: string[];
+  round: number;
+  decision_needed: boolean;
+  at: string;
+  seq: number;
+  decided?: { choice: 'accept' | 'relabel'; by: string; round: number; rounds: number[]; at: string };
 }
 
 export interface RoundRecord {
@@ -86,12 +102,16 @@ export interface CampaignState {
   lastRun?: { started: RunStartedEvent & { seq: number; at: string }; ended?: RunEndedEvent & { at: string } };
   /** The campaign file that owns this folder's state (campaign_identity), when recorded. */
   identity?: CampaignIdentityEvent & { seq: number; at: string };
+  /** The campaign revisions in ledger order; the last is in force. */
+  revisions: RevisionRecord[];
+  /** Label stages that relabel earlier rounds' frames (revision_decided, choice relabel), by round. */
+  relabel: Map<number, { sha256: string; number: number; rounds: number[] }>;
   events: number;
   lastSeq: number;
 }
 
 export function emptyState(): CampaignState {
-  return { rounds: [], tasks: new Map(), byPath: new Map(), judged: new Set(), events: 0, lastSeq: 0 };
+  return { rounds: [], tasks: new Map(), byPath: new Map(), judged: new Set(), revisions: [], relabel: new Map(), events: 0, lastSeq: 0 };
 }
 
 function roundRecord(s: CampaignState, round: number): RoundRecord {
@@ -120,6 +140,8 @@ export function applyEvent(s: CampaignState, e: LedgerEvent): CampaignState {
       if (rr.stages[stage]) break; // planned twice (cannot happen through the engine): keep the first
       const names = (e.tasks as string[]) ?? [];
       const rec: StageRecord = { round, stage, tasks: [], inputs: (e.inputs as string[]) ?? [], planned_at: e.at, verdicts: 0 };
+      const inForce = s.revisions[s.revisions.length - 1];
+      if (inForce) rec.revision = inForce.number;
       for (const name of names) {
         const t: TaskRecord = { id: `r${round}/${stage}/${name}`, round, stage, name, attempts: [{ n: 1 }] };
         rec.tasks.push(t);
@@ -224,6 +246,30 @@ export function applyEvent(s: CampaignState, e: LedgerEvent): CampaignState {
     case 'campaign_resumed':
       s.ended = undefined;
       break;
+    case 'campaign_revision': {
+      if (typeof e.sha256 !== 'string') break;
+      s.revisions.push({
+        sha256: e.sha256,
+        number: typeof e.number === 'number' ? e.number : s.revisions.length + 1,
+        ...(typeof e.previous === 'string' ? { previous: e.previous } : {}),
+        changes: Array.isArray(e.changes) ? (e.changes as RevisionRecord['changes']) : [],
+        affects_data: Array.isArray(e.affects_data) ? (e.affects_data as string[]) : [],
+        round: typeof e.round === 'number' ? e.round : 0,
+        decision_needed: e.decision_needed === true,
+        at: e.at,
+        seq: e.seq,
+      });
+      break;
+    }
+    case 'revision_decided': {
+      const r = [...s.revisions].reverse().find((k) => k.sha256 === e.sha256);
+      if (!r || r.decided) break;
+      const choice = e.choice === 'relabel' ? 'relabel' : 'accept';
+      const rounds = Array.isArray(e.rounds) ? (e.rounds as number[]) : [];
+      r.decided = { choice, by: String(e.by ?? ''), round: e.round as number, rounds, at: e.at };
+      if (choice === 'relabel') s.relabel.set(e.round as number, { sha256: r.sha256, number: r.number, rounds });
+      break;
+    }
     case 'run_started':
       s.lastRun = { started: e as unknown as RunStartedEvent & { seq: number; at: string } };
       break;

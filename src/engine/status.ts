@@ -49,6 +49,10 @@ export interface RoundStatus {
   calibration?: RoundCalibration;
   /** The round's validation failed and it explored anyway (rounds.explore_unvalidated): it cannot converge. */
   unvalidated?: { reason: string; at: string };
+  /** The campaign revision in force when the round's first stage was planned (absent before revisions were recorded). */
+  revision?: number;
+  /** Every revision its stages were planned under, when more than one. */
+  revisions?: number[];
 }
 
 export interface StatusReport {
@@ -74,6 +78,19 @@ export interface StatusReport {
   held?: { task: string; how: 'stop' | 'cancelled'; by?: string; reason: string; at: string; release: string }[];
   last_run?: { command: string; started: string; outcome?: string; exit_code?: number; ended?: string };
   /** Core-hours used (exit records' end - start x cpus), by round ("r0") and stage ("r0/label"), and the budget. */
+  /** The recorded versions of the campaign file (campaign_revision), oldest first; absent before any was recorded. */
+  revisions?: {
+    number: number;
+    sha256: string;
+    /** The round it came into force at. */
+    round: number;
+    changes: number;
+    affects_data: string[];
+    /** The person's choice, when the revision affected data already made. */
+    decision?: { choice: 'accept' | 'relabel'; by: string; round: number };
+    /** Waits for --accept-revision or --relabel. */
+    pending?: true;
+  }[];
   core_hours: { total: number; by_round: Record<string, number>; by_stage: Record<string, number>; unknown_attempts: number; budget: { core_hours?: number; core_hours_per_round?: number } };
 }
 
@@ -119,6 +136,9 @@ export function buildStatus(view: CampaignView, state: CampaignState, campaignAr
     if (cal) out.calibration = cal;
     const waived = rr.stages.validate?.waived;
     if (waived) out.unvalidated = { reason: waived.reason, at: waived.at };
+    const revs = [...new Set(STAGES.map((k) => rr.stages[k]?.revision).filter((n): n is number => n !== undefined))];
+    if (revs.length) out.revision = revs[0];
+    if (revs.length > 1) out.revisions = revs;
     return out;
   });
   const report: StatusReport = {
@@ -139,6 +159,18 @@ export function buildStatus(view: CampaignView, state: CampaignState, campaignAr
     conditions: view.conditions.map((c) => c.name),
     core_hours: coreHours(view, state),
   };
+  if (state.revisions.length) {
+    const last = state.revisions[state.revisions.length - 1];
+    report.revisions = state.revisions.map((r) => ({
+      number: r.number,
+      sha256: r.sha256,
+      round: r.round,
+      changes: r.changes.length,
+      affects_data: r.affects_data,
+      ...(r.decided ? { decision: { choice: r.decided.choice, by: r.decided.by, round: r.decided.round } } : {}),
+      ...(r === last && r.decision_needed && !r.decided ? { pending: true as const } : {}),
+    }));
+  }
   if (state.ended) {
     report.ended = { state: state.ended.state, round: state.ended.round, reasons: state.ended.reasons, holding: state.ended.holding };
   }
@@ -308,11 +340,18 @@ export function formatStatus(r: StatusReport, out: Output): void {
       );
     }
   }
+  formatRevisionsBlock(r, out);
   formatCoreHours(r, out);
   out.line('');
   if (r.ended) {
     out.line(`campaign ${out.word(r.ended.state)} in round ${r.ended.round}${r.ended.holding.length ? `; held back by ${r.ended.holding.join(', ')}` : ''}`);
     for (const reason of r.ended.state === 'exhausted' ? r.ended.reasons : []) out.line(`  - ${reason}`);
+    return;
+  }
+  const pending = r.revisions?.find((v) => v.pending);
+  if (pending) {
+    out.line(`campaign revision ${pending.number} changes ${pending.affects_data.join(', ')}, which labels already made depend on:`);
+    out.line(`next: ratchet run ${shellQuote(r.campaign.file)} --accept-revision (keep them), or --relabel (label them again in the next label stage)`);
     return;
   }
   if (r.at) {
@@ -378,6 +417,23 @@ function oneLine(s: string, max = 160): string {
   return l.length > max ? `${l.slice(0, max)}…` : l;
 }
 
+
+/** The campaign revisions, and which rounds ran under which. */
+function formatRevisionsBlock(r: StatusReport, out: Output): void {
+  const revs = r.revisions ?? [];
+  if (revs.length === 0) return;
+  out.line('');
+  out.line(`campaign revisions (ratchet revisions ${shellQuote(r.campaign.file)} A B shows what changed):`);
+  for (const v of revs) {
+    const ran = r.rounds.filter((rr) => (rr.revisions ?? (rr.revision !== undefined ? [rr.revision] : [])).includes(v.number)).map((rr) => `r${rr.round}`);
+    const what = v.pending
+      ? `; ${v.affects_data.length} affect(s) data already made: waits for --accept-revision or --relabel`
+      : v.decision
+        ? `; ${v.decision.choice === 'relabel' ? `relabel in r${v.decision.round}` : 'accepted'} by ${v.decision.by}`
+        : '';
+    out.line(`  ${pad(String(v.number), 4)}${pad(v.sha256.slice(0, 12), 14)}from r${v.round}, ${v.changes} change(s)${what}${ran.length ? `; rounds ${ran.join(', ')}` : ''}`);
+  }
+}
 
 const round6 = (h: number): number => Math.round(h * 1e6) / 1e6;
 

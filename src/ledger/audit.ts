@@ -65,9 +65,20 @@ interface CacheEntry {
   sig?: string;
 }
 
+/** A folder under rounds/ as last listed: its mtime, its files other than task records, its sub-folders. */
+interface DirEntry {
+  mtime_ms: number;
+  files: string[];
+  dirs: string[];
+  /** Task records in it (counted, not listed). */
+  bookkeeping: number;
+}
+
 interface Cache {
   version: number;
   entries: Record<string, CacheEntry>;
+  /** Folders under rounds/ (relative paths); a folder whose mtime is unchanged is not listed again. */
+  dirs?: Record<string, DirEntry>;
 }
 
 export interface AuditOptions {
@@ -190,6 +201,32 @@ async function walk(root: string, prefix: string, out: Walked[], stat = true): P
   }
 }
 
+/**
+ * The files under rounds/ other than task records, listing again only folders whose mtime changed
+ * (adding, removing or renaming an entry changes its folder's mtime). Counts the task records seen.
+ */
+function listRounds(root: string, prefix: string, old: Record<string, DirEntry>, fresh: Record<string, DirEntry>, out: string[], counts: { bookkeeping: number; listed: number }): void {
+  const abs = prefix ? join(root, prefix) : root;
+  const st = statSync(abs, { throwIfNoEntry: false });
+  if (!st || !st.isDirectory()) return;
+  let e = old[prefix];
+  if (!e || e.mtime_ms !== st.mtimeMs) {
+    counts.listed++;
+    e = { mtime_ms: st.mtimeMs, files: [], dirs: [], bookkeeping: 0 };
+    for (const it of readdirSync(abs, { withFileTypes: true })) {
+      if (it.isDirectory()) e.dirs.push(it.name);
+      else if (it.isFile() || it.isSymbolicLink()) {
+        if (BOOKKEEPING.test(it.name)) e.bookkeeping++;
+        else e.files.push(it.name);
+      }
+    }
+  }
+  fresh[prefix] = e;
+  counts.bookkeeping += e.bookkeeping;
+  for (const f of e.files) out.push(prefix ? `${prefix}/${f}` : f);
+  for (const d of e.dirs) listRounds(root, prefix ? `${prefix}/${d}` : d, old, fresh, out, counts);
+}
+
 const SMALL = 4 << 20;
 
 /** sha256 of a regular file: small files read at once (much faster than a stream), large ones streamed. */
@@ -226,10 +263,14 @@ export async function auditCampaign(dir: string, opts: AuditOptions = {}): Promi
   };
 
   // Everything under rounds/ once: it serves directory signatures and the unregistered scan.
-  // Only names here: size is looked up for the few files no artifact covers.
-  const files: Walked[] = [];
-  await walk(join(dir, 'rounds'), '', files, false);
-  for (const f of files) f.rel = `rounds/${f.rel}`;
+  // Only names here (size is looked up for the few files no artifact covers); folders unchanged since
+  // the last audit are not listed again.
+  const names: string[] = [];
+  const freshDirs: Record<string, DirEntry> = {};
+  const counts = { bookkeeping: 0, listed: 0 };
+  listRounds(join(dir, 'rounds'), '', cache.dirs ?? {}, freshDirs, names, counts);
+  res.bookkeeping = counts.bookkeeping;
+  const files: Walked[] = names.map((n) => ({ rel: `rounds/${n}`, size: -1, mtime: -1 }));
 
   const dirPaths = new Set([...byPath.values()].filter((a) => a.kind === 'dir').map((a) => a.path));
   const underDir = (p: string): boolean => {
@@ -283,11 +324,6 @@ export async function auditCampaign(dir: string, opts: AuditOptions = {}): Promi
 
   for (const f of files) {
     if (byPath.has(f.rel) || underDir(f.rel)) continue;
-    const name = f.rel.slice(f.rel.lastIndexOf('/') + 1);
-    if (BOOKKEEPING.test(name)) {
-      res.bookkeeping++;
-      continue;
-    }
     f.size = (await fsp.lstat(join(dir, f.rel)).catch(() => null))?.size ?? 0;
     // rounds/rK/<stage>/<task>/... is a task's folder.
     const parts = f.rel.split('/');
@@ -302,7 +338,7 @@ export async function auditCampaign(dir: string, opts: AuditOptions = {}): Promi
   res.clean = ledger.problems.length === 0 && res.missing.length === 0 && res.changed.length === 0 && res.unregistered.length === 0;
   if (opts.writeCache ?? true) {
     try {
-      await writeCache(dir, { version: CACHE_VERSION, entries: fresh });
+      await writeCache(dir, { version: CACHE_VERSION, entries: fresh, dirs: freshDirs });
     } catch {
       /* a read-only campaign folder: audit still answers, only not incrementally next time */
     }

@@ -51,6 +51,8 @@ export interface ReportData {
   verdicts: { seq: number; at: string; round: number; stage: string; verdict: Verdict; gate: string; task?: string; reasons: string[]; figures: Record<string, unknown> }[];
   lineage: { round: number | null; nodes: { id: string; role: string; path: string; layer: number; row: number }[]; edges: { from: string; to: string }[]; truncated: boolean };
   cautions: string[];
+  /** The campaign revisions (as status reports them), with the rounds that ran under each; absent before any was recorded. */
+  revisions?: (NonNullable<StatusReport['revisions']>[number] & { rounds: number[] })[];
 }
 
 export const CAUTIONS = [
@@ -301,7 +303,13 @@ export async function collectReport(status: StatusReport, events: LedgerEvent[],
     if (g.gates.length === 0) verdicts.push({ seq: g.seq, at: g.at, round: g.round, stage: g.stage, verdict: g.verdict, gate: '(stage)', reasons: [], figures: g.figures });
   }
 
+  const revisions = status.revisions?.map((v) => ({
+    ...v,
+    rounds: status.rounds.filter((r) => (r.revisions ?? (r.revision !== undefined ? [r.revision] : [])).includes(v.number)).map((r) => r.round),
+  }));
+
   return {
+    ...(revisions ? { revisions } : {}),
     tool_version: VERSION,
     campaign: { name: status.campaign.name, file: status.campaign.file, dir, sha256: status.campaign.sha256 },
     state,

@@ -131,7 +131,7 @@ describe('bad-input corpus', () => {
       "campaign.yaml:14:5: stages.train.holdout: unknown key here; 'holdout' belongs under the top level",
     );
     expect(await message(edit('  train:\n', '  train:\n    colour: blue\n'))).toBe(
-      'campaign.yaml:14:5: stages.train.colour: unknown key; expected one of: command, resources, setup, attempts, params',
+      'campaign.yaml:14:5: stages.train.colour: unknown key; expected one of: command, resources, setup, attempts, params, programs',
     );
   });
 

@@ -46,7 +46,9 @@ describe('a campaign from start to convergence', () => {
     expect(end).toMatchObject({ state: 'converged', round: 1 });
     // A new ledger starts by naming its campaign file (one state per campaign file), then the run.
     expect(events[0]).toMatchObject({ type: 'campaign_identity', name: 'engine test', file: 'campaign.yaml' });
-    expect(events[1].type).toBe('run_started');
+    // then the campaign file's first revision (src/engine/revisions.ts), then the run.
+    expect(events[1]).toMatchObject({ type: 'campaign_revision', number: 1, changes: [] });
+    expect(events[2].type).toBe('run_started');
     expect(events.at(-1)).toMatchObject({ type: 'run_ended', outcome: 'finished', exit_code: 0 });
   });
 

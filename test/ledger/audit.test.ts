@@ -125,6 +125,11 @@ describe('ratchet audit', () => {
     const third = await auditCampaign(d);
     expect(third.hashed).toBe(1);
     expect(third.changed.map((c) => c.path)).toEqual([model.path]);
+    // A stray file added after an audit: its folder's mtime changed, so the incremental audit lists it again.
+    writeFileSync(join(d, 'rounds/r1/label/extra.xyz'), 'x');
+    const fourth = await auditCampaign(d);
+    expect(fourth.unregistered.map((u) => u.path)).toEqual(['rounds/r1/label/extra.xyz']);
+    expect(fourth.bookkeeping).toBe(first.bookkeeping);
     const full = await auditCampaign(d, { full: true });
     expect(full.hashed).toBe(first.registered);
   });

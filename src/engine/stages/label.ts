@@ -136,6 +136,30 @@ interface CheckSummary {
   dropped_keys: string[];
   train_frames: number;
   test_frames: number;
+  /** A campaign revision's relabel choice (revision_decided): this round labeled earlier rounds' frames again. */
+  relabeled?: { frames: number; rounds: number[]; revision: number; note: string };
+}
+
+/** The frames of earlier rounds' labeled.xyz that this round labels again (a revision's relabel choice), as sent. */
+async function relabelFrames(ctx: StageContext): Promise<{ texts: string[]; inputs: string[]; rounds: number[]; revision: number } | undefined> {
+  const r = ctx.state.relabel?.get(ctx.round);
+  if (!r) return undefined;
+  const texts: string[] = [];
+  const inputs: string[] = [];
+  for (const k of r.rounds) {
+    const p = labelFiles(ctx, k).labeled;
+    if (!(await exists(p))) continue;
+    const id = ctx.artifactId(p);
+    if (id) inputs.push(id);
+    // Structure and provenance only: the old labels do not travel with the frames.
+    for await (const f of readFrames(p)) texts.push(formatFrame(cleanForLabeling(f)));
+  }
+  return { texts, inputs, rounds: r.rounds, revision: r.number };
+}
+
+function relabelNote(n: number, rounds: number[], revision: number): string {
+  const which = rounds.length === 0 ? 'no round' : rounds.length === 1 ? `round r${rounds[0]}` : `rounds r${rounds[0]}..r${rounds[rounds.length - 1]}`;
+  return `relabeled ${n} frames of ${which} under revision ${revision}; earlier labels dropped from the data sets`;
 }
 
 async function allFrames(path: string): Promise<Frame[]> {
@@ -154,6 +178,11 @@ export const label: StageDef = {
     // The data-hygiene rule once more, for frames a campaign's own sample command wrote: structure and
     // provenance keys only (the built-in sampling already wrote them so; cleaning again changes nothing).
     for await (const f of readFrames(selected.path)) texts.push(formatFrame(cleanForLabeling(f)));
+    const own = texts.length;
+    // A campaign revision's relabel choice: the earlier rounds' labeled frames are labeled again here.
+    const again = await relabelFrames(ctx);
+    if (again) texts.push(...again.texts);
+    const sources = [selected.artifact, ...(again?.inputs ?? [])];
     const per = ctx.view.framesPerTask;
     const count = Math.ceil(texts.length / per);
     const tasks: PlannedTask[] = [];
@@ -164,7 +193,7 @@ export const label: StageDef = {
       const content = texts.slice(k * per, (k + 1) * per).join('');
       const path = abs(taskDir(ctx, ctx.round, 'label', name), LABEL_INPUT);
       const id = artifactId(createHash('sha256').update(content).digest('hex'));
-      artifacts.push({ path, role: 'chunk', inputs: [selected.artifact], content, written: true });
+      artifacts.push({ path, role: 'chunk', inputs: sources, content, written: true });
       tasks.push({
         name,
         seed: deriveSeed(ctx.view.seed, `r${ctx.round}/label/${name}`),
@@ -174,7 +203,9 @@ export const label: StageDef = {
         files: { [LABEL_INPUT]: content },
       });
     }
-    return { tasks, inputs: [selected.artifact], artifacts, notes: [`${texts.length} frames in ${count} task(s) of up to ${per}`] };
+    const notes = [`${texts.length} frames in ${count} task(s) of up to ${per}`];
+    if (again) notes.push(`${own} selected + ${relabelNote(again.texts.length, again.rounds, again.revision)}`);
+    return { tasks, inputs: sources, artifacts, notes };
   },
 
   async collect(ctx) {
@@ -217,7 +248,18 @@ export const label: StageDef = {
     summary.dropped_keys = [...dropped].sort();
     summary.accepted = accepted.length;
     const files = labelFiles(ctx, ctx.round);
-    const prev = ctx.round > 0 ? labelFiles(ctx, ctx.round - 1) : undefined;
+    // After a revision's relabel choice, this round's labels alone make the data sets: the earlier labels,
+    // made under the earlier settings, are dropped (their frames were labeled again here).
+    const again = ctx.state.relabel?.get(ctx.round);
+    if (again) {
+      let n = 0;
+      for (const k of again.rounds) {
+        const p = labelFiles(ctx, k).labeled;
+        if (await exists(p)) for await (const _ of readFrames(p)) n++;
+      }
+      summary.relabeled = { frames: n, rounds: again.rounds, revision: again.number, note: relabelNote(n, again.rounds, again.number) };
+    }
+    const prev = ctx.round > 0 && !again ? labelFiles(ctx, ctx.round - 1) : undefined;
     const prevText = async (p: string | undefined): Promise<string> => (p && (await exists(p)) ? await readFile(p, 'utf8') : '');
     const trainText = (await prevText(prev?.train)) + train.join('');
     const testText = (await prevText(prev?.test)) + test.join('');
@@ -264,15 +306,20 @@ export const label: StageDef = {
       }
     }
     if (verdict === 'pass') reasons.push(`${s.accepted} frame(s) labeled; training set ${s.train_frames}, held out ${s.test_frames}`);
+    if (s.relabeled) reasons.push(s.relabeled.note);
     // The committee's spread against the true error on the frames just labeled (src/engine/calibrate.ts).
     const cal = await calibrationRecord(ctx);
-    return combine([{ gate: 'labels', verdict, reasons, figures: { ...s } }, ...(cal ? [cal.record] : [])], {
+    const v = combine([{ gate: 'labels', verdict, reasons, figures: { ...s } }, ...(cal ? [cal.record] : [])], {
       frames: s.frames,
       accepted: s.accepted,
       rejected: s.rejected_count,
       train_frames: s.train_frames,
       test_frames: s.test_frames,
       ...(cal ? { calibration: cal.figures } : {}),
+      ...(s.relabeled ? { relabeled: s.relabeled } : {}),
     });
+    // The relabel note goes with the one line that sums the stage up.
+    if (s.relabeled) v.summary = `${s.accepted} frame(s) labeled; ${s.relabeled.note}`;
+    return v;
   },
 };
