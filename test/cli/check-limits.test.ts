@@ -3,8 +3,8 @@
  * one table (src/gates/limits.ts), warn above fail and the renamed drift options are bad input (exit 2), and forces are
  * judged per element (exit 1 when one element is above its fail limit although the overall RMSE is not).
  */
-import { afterAll, beforeAll, describe, expect, it, vi } from 'vitest';
-import { Command } from 'commander';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { inProcess } from './in-process.js';
 import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -13,44 +13,7 @@ import { LIMITS } from '../../src/gates/limits.js';
 import { writeFrames } from '../../src/atoms/xyz/writer.js';
 import { lcg, makeFrame } from '../gates/helpers.js';
 
-class Exit extends Error {
-  constructor(readonly code: number) {
-    super(`exit ${code}`);
-  }
-}
-
-async function ratchet(...args: string[]): Promise<{ code: number; stdout: string; stderr: string }> {
-  let stdout = '';
-  let stderr = '';
-  const out = vi.spyOn(process.stdout, 'write').mockImplementation((chunk: string | Uint8Array) => {
-    stdout += String(chunk);
-    return true;
-  });
-  const err = vi.spyOn(process.stderr, 'write').mockImplementation((chunk: string | Uint8Array) => {
-    stderr += String(chunk);
-    return true;
-  });
-  const exit = vi.spyOn(process, 'exit').mockImplementation((code?: string | number | null) => {
-    throw new Exit(Number(code ?? 0));
-  });
-  process.exitCode = undefined;
-  let code: number;
-  try {
-    const program = new Command().name('ratchet');
-    register(program);
-    await program.parseAsync(['node', 'ratchet', 'check', ...args]);
-    code = Number(process.exitCode ?? 0);
-  } catch (e) {
-    if (!(e instanceof Exit)) throw e;
-    code = e.code;
-  } finally {
-    out.mockRestore();
-    err.mockRestore();
-    exit.mockRestore();
-    process.exitCode = undefined;
-  }
-  return { code, stdout, stderr };
-}
+const ratchet = (...args: string[]) => inProcess(register, ['check', ...args]);
 
 let dir: string;
 let momentaKinetic = 0;

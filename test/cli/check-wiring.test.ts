@@ -6,50 +6,12 @@ import { describe, expect, it, beforeAll, afterAll, afterEach, vi } from 'vitest
 import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { Command } from 'commander';
 import { register } from '../../src/cli/check.js';
-import { oneVoice } from '../../src/cli/errors.js';
+import { inProcess } from './in-process.js';
 import { writeFrames } from '../../src/atoms/xyz/writer.js';
 import { makeFrame } from '../gates/helpers.js';
 
-class Exit extends Error {
-  constructor(readonly code: number) {
-    super(`exit ${code}`);
-  }
-}
-
-async function ratchet(...args: string[]): Promise<{ code: number; stdout: string; stderr: string }> {
-  let stdout = '';
-  let stderr = '';
-  const out = vi.spyOn(process.stdout, 'write').mockImplementation((chunk: string | Uint8Array) => {
-    stdout += String(chunk);
-    return true;
-  });
-  const err = vi.spyOn(process.stderr, 'write').mockImplementation((chunk: string | Uint8Array) => {
-    stderr += String(chunk);
-    return true;
-  });
-  const exit = vi.spyOn(process, 'exit').mockImplementation((code?: string | number | null) => {
-    throw new Exit(Number(code ?? 0));
-  });
-  process.exitCode = undefined;
-  let code: number;
-  try {
-    const program = oneVoice(new Command().name('ratchet'));
-    register(program);
-    await program.parseAsync(['node', 'ratchet', 'check', ...args]);
-    code = Number(process.exitCode ?? 0);
-  } catch (e) {
-    if (!(e instanceof Exit)) throw e;
-    code = e.code;
-  } finally {
-    out.mockRestore();
-    err.mockRestore();
-    exit.mockRestore();
-    process.exitCode = undefined;
-  }
-  return { code, stdout, stderr };
-}
+const ratchet = (...args: string[]) => inProcess(register, ['check', ...args]);
 
 let dir: string;
 const at = (name: string) => join(dir, name);

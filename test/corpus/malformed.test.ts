@@ -6,15 +6,14 @@
  * campaign. Commands run in-process (commander with the command registered, as the CLI wires it) or
  * through runCampaign, so the corpus stays fast; a few items also go through the real CLI.
  */
-import { afterAll, beforeAll, describe, expect, it, vi } from 'vitest';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { existsSync, mkdirSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { spawnSync } from 'node:child_process';
 import { tmpdir } from 'node:os';
 import { dirname, join } from 'node:path';
 import { fileURLToPath } from 'node:url';
-import { Command } from 'commander';
 import { CampaignError, loadCampaign } from '../../src/campaign/load.js';
-import { oneVoice } from '../../src/cli/errors.js';
+import { inProcess } from '../cli/in-process.js';
 import { register as registerSchema } from '../../src/cli/schema.js';
 import { register as registerCheck } from '../../src/cli/check.js';
 import { BufferOutput } from '../../src/engine/output.js';
@@ -28,39 +27,6 @@ beforeAll(() => {
 });
 afterAll(() => rmSync(root, { recursive: true, force: true }));
 
-class Exit extends Error {
-  constructor(readonly code: number) {
-    super(`exit ${code}`);
-  }
-}
-
-/** One command in-process: a fresh program with the command registered; output and exit code captured. */
-async function inProcess(registerIt: (p: Command) => void, args: string[]): Promise<{ code: number; stdout: string; stderr: string }> {
-  let stdout = '';
-  let stderr = '';
-  const out = vi.spyOn(process.stdout, 'write').mockImplementation((c: string | Uint8Array) => ((stdout += String(c)), true));
-  const err = vi.spyOn(process.stderr, 'write').mockImplementation((c: string | Uint8Array) => ((stderr += String(c)), true));
-  const exit = vi.spyOn(process, 'exit').mockImplementation((c?: string | number | null) => {
-    throw new Exit(Number(c ?? 0));
-  });
-  process.exitCode = undefined;
-  let code: number;
-  try {
-    const program = oneVoice(new Command().name('ratchet')).exitOverride((e) => process.exit(e.exitCode === 0 ? 0 : 2));
-    registerIt(program);
-    await program.parseAsync(['node', 'ratchet', ...args]);
-    code = Number(process.exitCode ?? 0);
-  } catch (e) {
-    if (!(e instanceof Exit)) throw e;
-    code = e.code;
-  } finally {
-    out.mockRestore();
-    err.mockRestore();
-    exit.mockRestore();
-    process.exitCode = undefined;
-  }
-  return { code, stdout, stderr };
-}
 
 const STACK = /\n\s+at .+\(?.*:\d+:\d+\)?/;
 const LEDGER_LINE = (file: string) => JSON.stringify({ seq: 1, at: '2026-01-01T00:00:00.000Z', type: 'campaign_identity', name: 'engine test', file: 'campaign.yaml', path: file }) + '\n';

@@ -4,12 +4,12 @@
  * The campaign side uses the schema's parsed defaults and the same option mapping as the validate stage
  * (src/engine/stages/validate-limits.ts); the check side runs the real command in-process and reads its --json.
  */
-import { afterAll, beforeAll, describe, expect, it, vi } from 'vitest';
-import { Command } from 'commander';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { mkdtempSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { register } from '../../src/cli/check.js';
+import { inProcess } from '../cli/in-process.js';
 import { parseCampaign } from '../../src/campaign/schema.js';
 import { checkErrors } from '../../src/gates/errors.js';
 import { checkDrift } from '../../src/gates/drift.js';
@@ -20,40 +20,11 @@ import { driftGateOptions, errorsGateOptions } from '../../src/engine/stages/val
 import { writeFrames } from '../../src/atoms/xyz/writer.js';
 import { lcg, makeFrame } from './helpers.js';
 
-class Exit extends Error {
-  constructor(readonly code: number) {
-    super(`exit ${code}`);
-  }
-}
 
 /** `ratchet check ... --json` in-process: the parsed JSON and the exit code. */
 async function checkJson(...args: string[]): Promise<{ code: number; json: Record<string, unknown> }> {
-  let stdout = '';
-  const out = vi.spyOn(process.stdout, 'write').mockImplementation((chunk: string | Uint8Array) => {
-    stdout += String(chunk);
-    return true;
-  });
-  const err = vi.spyOn(process.stderr, 'write').mockImplementation(() => true);
-  const exit = vi.spyOn(process, 'exit').mockImplementation((code?: string | number | null) => {
-    throw new Exit(Number(code ?? 0));
-  });
-  process.exitCode = undefined;
-  let code: number;
-  try {
-    const program = new Command().name('ratchet');
-    register(program);
-    await program.parseAsync(['node', 'ratchet', 'check', ...args, '--json']);
-    code = Number(process.exitCode ?? 0);
-  } catch (e) {
-    if (!(e instanceof Exit)) throw e;
-    code = e.code;
-  } finally {
-    out.mockRestore();
-    err.mockRestore();
-    exit.mockRestore();
-    process.exitCode = undefined;
-  }
-  return { code, json: stdout ? (JSON.parse(stdout) as Record<string, unknown>) : {} };
+  const r = await inProcess(register, ['check', ...args, '--json']);
+  return { code: r.code, json: r.stdout ? (JSON.parse(r.stdout) as Record<string, unknown>) : {} };
 }
 
 const campaign = (validate: Record<string, unknown> = {}) =>
