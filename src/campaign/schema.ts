@@ -61,6 +61,9 @@ export const Walltime = z
   })
   .meta({ description: 'Walltime: "HH:MM:SS", "D-HH:MM:SS", or whole seconds.' });
 
+/** Below this a memory request cannot be meant (a unit left out): refused with the likely intent. */
+const MEMORY_FLOOR_MIB = 16;
+
 /** A memory size: "4G", "500M", "1.5G", "2T", or a number of MiB; parsed to MiB (binary units). */
 export const Memory = z
   .union([z.string().regex(/^\s*\d+(?:\.\d+)?\s*(?:[kmgtKMGT](?:i?[bB])?)?\s*$/, { error: MEMORY_EXPECTED }), z.number().gt(0, { error: MEMORY_EXPECTED })], {
@@ -70,6 +73,15 @@ export const Memory = z
     const mib = parseMemory(v);
     if (mib === undefined) {
       ctx.addIssue({ code: 'custom', message: MEMORY_EXPECTED, input: v });
+      return z.NEVER;
+    }
+    // A plain small number is almost surely gigabytes meant as MiB ("memory: 4"): no task runs in 4 MiB.
+    if (mib < MEMORY_FLOOR_MIB) {
+      ctx.addIssue({
+        code: 'custom',
+        message: `expected a memory size of at least ${MEMORY_FLOOR_MIB} MiB (${typeof v === 'number' ? `a plain number is MiB: ${v} is ${v} MiB; write "${v}G" for ${v} GiB` : `${JSON.stringify(v)} is ${mib} MiB`}), found ${JSON.stringify(v)}`,
+        input: v,
+      });
       return z.NEVER;
     }
     return mib;

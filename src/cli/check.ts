@@ -56,7 +56,7 @@ function limitOptions(cmd: Command, names: readonly LimitName[]): Command {
     for (const which of ['warn', 'fail'] as const) {
       const dv = d[which];
       cmd.option(
-        `--${optionStem(name)}-${which} <${d.unit}>`,
+        `--${optionStem(name)}-${which} <value>`,
         `${which} above this ${d.what}, ${d.unit} (default ${dv === null ? 'not checked' : dv}; campaign key ${name})`,
         positive,
       );
@@ -111,9 +111,9 @@ export function register(program: Command): void {
     .command('contacts')
     .description('closest distances overall and per species pair, and every pair closer than its limit')
     .argument('<files...>', 'extended XYZ files (frames numbered across the files in order)')
-    .option('--scale <x>', 'limit = x times the sum of covalent radii (Cordero et al. 2008)', positive, CONTACTS_DEFAULTS.scale)
-    .option('--hydrogen-scale <x>', 'pairs with hydrogen: limit = max(scale, x) times the sum of covalent radii', positive, CONTACTS_DEFAULTS.hydrogenScale)
-    .option('--pair-limit <A-B=Å>', 'explicit limit in Å for a species pair (repeatable, or comma-separated)', pairLimit)
+    .option('--scale <x>', 'limit = x times the sum of covalent radii (Cordero et al. 2008); a factor, no unit', positive, CONTACTS_DEFAULTS.scale)
+    .option('--hydrogen-scale <x>', 'pairs with hydrogen: limit = max(scale, x) times the sum of covalent radii; a factor, no unit', positive, CONTACTS_DEFAULTS.hydrogenScale)
+    .option('--pair-limit <A-B=dist>', 'explicit limit for a species pair, distance in Å, e.g. O-H=0.8 (repeatable, or comma-separated)', pairLimit)
     .option('--max-per-frame <n>', 'violations listed per frame (all are counted)', count, CONTACTS_DEFAULTS.maxPerFrame)
     .option('--max-violations <n>', 'violations listed in total (all are counted)', count, CONTACTS_DEFAULTS.maxViolations)
     .option('--workers <n>', 'worker threads (default min(2, cpus))', count)
@@ -191,7 +191,7 @@ export function register(program: Command): void {
     .option('--pred-energy-key <key>', 'info key of the predicted energy (eV)', 'energy')
     .option('--ref-forces-key <key>', 'per-atom reference forces (eV/Å)', 'forces')
     .option('--pred-forces-key <key>', 'per-atom predicted forces (eV/Å)', 'forces')
-    .option('--position-tolerance <Å>', 'largest position difference between the files', number, ERRORS_DEFAULTS.positionTolerance)
+    .option('--position-tolerance <dist>', 'largest position difference between the files, Å', number, ERRORS_DEFAULTS.positionTolerance)
     .option('--ref-stress-key <key>', 'info key of the reference stress (eV/Å^3, 6 Voigt or 9 numbers)', 'stress')
     .option('--pred-stress-key <key>', 'info key of the predicted stress (eV/Å^3, 6 Voigt or 9 numbers)', 'stress')
     .option('--json', 'print one JSON object');
@@ -216,11 +216,11 @@ export function register(program: Command): void {
     .command('committee')
     .description("committee force spread per frame and each frame's band (confident, informative, runaway)")
     .argument('<files...>', 'extended XYZ files with per-atom forces_0 ... forces_{M-1} (frames numbered across the files)')
-    .option('--lower <eV/Å>', 'lower edge of the informative window', number, COMMITTEE_DEFAULTS.lower)
-    .option('--upper <eV/Å>', 'upper edge of the informative window (runaway at or above)', number, COMMITTEE_DEFAULTS.upper)
+    .option('--lower <spread>', 'lower edge of the informative window, eV/Å', number, COMMITTEE_DEFAULTS.lower)
+    .option('--upper <spread>', 'upper edge of the informative window (runaway at or above), eV/Å', number, COMMITTEE_DEFAULTS.upper)
     .option('--prefix <name>', 'committee arrays are <prefix>0, <prefix>1, ...', COMMITTEE_DEFAULTS.prefix)
     .option('--models <m>', 'number of models M: every frame must carry exactly <prefix>0 ... <prefix>{M-1} (default: the highest <prefix>k of the first frame plus one)', count)
-    .option('--max-runaway-fraction <x>', 'fail when more than this fraction of frames is runaway', number, COMMITTEE_DEFAULTS.maxRunawayFraction)
+    .option('--max-runaway-fraction <x>', 'fail when more than this fraction of frames is runaway (0 to 1)', number, COMMITTEE_DEFAULTS.maxRunawayFraction)
     .option('--workers <n>', 'worker threads (default min(2, cpus))', count)
     .option('--json', 'print one JSON object')
     .action((files: string[], o) =>

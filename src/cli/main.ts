@@ -14,6 +14,9 @@ program
 // Usage errors in one voice with every other message (subcommands inherit it).
 oneVoice(program);
 registerCommands(program);
-program.parseAsync(process.argv).catch((err: unknown) => {
+// `ratchet help check contacts` shows the page of `ratchet check contacts --help` (commander's help command takes one word).
+const argv = [...process.argv];
+if (argv[2] === 'help' && argv.length > 4) argv.splice(2, argv.length - 2, ...argv.slice(3), '--help');
+program.parseAsync(argv).catch((err: unknown) => {
   process.exitCode = reportTopLevel(err);
 });

@@ -10,7 +10,7 @@ export function register(program: Command): void {
     .argument('[target]', 'a stage (r1/label) or a task (r1/label/0003); default: the whole campaign')
     .option('--reason <text>', 'why (recorded in the ledger with your user name and the time)')
     .option('--backend <name>', "where the tasks run (default: the campaign's backend.kind)")
-    .option('--wait <seconds>', 'how long to wait for a running ratchet run to record the stop before cancelling the jobs from here (default 30)')
+    .option('--wait <seconds>', 'how long to wait, in seconds, for a running ratchet run to record the stop before cancelling the jobs from here (default 30)')
     .addHelpText('after', '\nA ratchet run --follow of the campaign in another terminal records the stop at its next poll and ends.\nExit codes: 0 stopped (or handed to the running ratchet), 1 the jobs could not be cancelled, 2 bad input.')
     .action(async (campaign: string, target: string | undefined, o: { reason?: string; backend?: string; wait?: string }) => {
       const waitS = o.wait === undefined ? undefined : Number(o.wait);

@@ -62,6 +62,7 @@ export class Engine {
     const r = await this.sink.append(e as NewEvent);
     applyEvent(this.state, r);
     killPoint('append');
+    this.tell(r);
     return r;
   }
 
@@ -71,8 +72,18 @@ export class Engine {
     for (const r of rs) {
       applyEvent(this.state, r);
       killPoint('append');
+      this.tell(r);
     }
     return rs;
+  }
+
+  /** With --verbose: one line per task event. */
+  private tell(e: LedgerEvent): void {
+    if (!this.out.verbose) return;
+    if (e.type === 'task_submitted') this.out.detail(`  ${e.task} attempt ${e.attempt}: submitted (${e.backend} ${e.job_id})`);
+    else if (e.type === 'task_started') this.out.detail(`  ${e.task} attempt ${e.attempt}: started`);
+    else if (e.type === 'task_ended')
+      this.out.detail(`  ${e.task} attempt ${e.attempt}: ${e.state}${e.exit_code !== undefined ? ` (exit ${e.exit_code})` : ''}${e.reason ? `: ${String(e.reason).split('\n')[0]}` : ''}`);
   }
 
   interrupt(signal: NodeJS.Signals): void {

@@ -23,6 +23,10 @@ export class Output {
   private drawn = false;
   private lastDraw = 0;
   private lastPlain = new Map<string, number>();
+  /** --quiet: no progress lines or bar (verdicts, notes and the outcome still print). */
+  quiet = false;
+  /** --verbose: also one line per task event (submitted, started, ended with its exit code and reason). */
+  verbose = false;
 
   constructor(
     readonly stream: OutStream,
@@ -62,6 +66,7 @@ export class Output {
    * time another tenth of the tasks has ended (and at the end), so logs stay short.
    */
   progress(label: string, done: number, total: number, detail: string, force = false): void {
+    if (this.quiet) return;
     if (this.tty) {
       const now = Date.now();
       if (!force && now - this.lastDraw < 100 && done < total) return;
@@ -82,6 +87,11 @@ export class Output {
       this.lastPlain.set(key, done === total ? 10 : step);
       if (done > 0 || total === 0) this.stream.write(`${label} ${done}/${total} ended${detail ? `, ${detail}` : ''}\n`);
     }
+  }
+
+  /** A line shown only with --verbose. */
+  detail(text: string): void {
+    if (this.verbose) this.line(text);
   }
 
   /** End the progress display of a label (the next progress of the same label starts afresh). */

@@ -47,6 +47,9 @@ export interface RunOptions {
   /** `ratchet retry`: the task or stage to run again. */
   retry?: string;
   out?: Output;
+  /** -q: no progress lines; -v: a line per task event. */
+  quiet?: boolean;
+  verbose?: boolean;
   /** Error lines (default: stderr, prefixed "ratchet: "). */
   error?: (message: string) => void;
   /** Install SIGINT/SIGTERM handlers (the CLI does; tests calling the library need not). */
@@ -136,6 +139,8 @@ export async function prepare(
 
 export async function runCampaign(opts: RunOptions): Promise<RunResult> {
   const out = opts.out ?? new Output(process.stdout);
+  if (opts.quiet) out.quiet = true;
+  if (opts.verbose) out.verbose = true;
   const error = opts.error ?? ((m: string) => process.stderr.write(`ratchet: ${m}\n`));
   const prep = await prepare(opts, error);
   if (typeof prep === 'number') return { exitCode: prep };

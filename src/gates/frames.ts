@@ -4,7 +4,7 @@
  */
 import { availableParallelism } from 'node:os';
 import type { FrameJob } from '../atoms/xyz/map.js';
-import type { FileSpan } from './types.js';
+import { GateInputError, type FileSpan } from './types.js';
 
 /** Default worker threads for a gate: min(2, cpus) (the speed path of the reader's benchmark). */
 export function defaultWorkers(): number {
@@ -19,6 +19,10 @@ export async function mapFiles<R>(paths: string[], job: FrameJob, workers = defa
   const files: FileSpan[] = [];
   for (const path of paths) {
     const part = await mapFrames<R>(path, job, { workers });
+    // A file without frames, or a frame without atoms, is input no gate can judge (bad input, not a verdict).
+    if (part.length === 0) throw new GateInputError(`${path}: no frame in the file (it is empty or holds only blank lines); expected extended XYZ with at least one frame`);
+    const empty = part.findIndex((r) => (r as { atoms?: unknown }).atoms === 0);
+    if (empty >= 0) throw new GateInputError(`${path}: frame ${empty} has 0 atoms; expected at least one atom in every frame`);
     files.push({ path, first_frame: results.length, frames: part.length });
     for (const r of part) results.push(r);
   }

@@ -73,6 +73,10 @@ ${section('Stability', ['drift'])}
 ${section('Data', ['counts'], rej)}
 ${section('Cost', ['core_hours', 'core_hours_total'], budget)}
 ${section('Provenance', ['lineage'])}
+<section data-revisions>
+<h2>Campaign revisions</h2>
+${revisionsTable(d)}
+</section>
 <section>
 <h2>Every gate verdict</h2>
 ${verdicts}
@@ -80,4 +84,17 @@ ${verdicts}
 </body>
 </html>
 `;
+}
+
+/** Which version of the campaign file each round ran under, what changed and what the person chose. */
+function revisionsTable(d: ReportData): string {
+  const list = d.revisions ?? [];
+  if (list.length === 0) return '<p>No revision recorded yet (recorded from the next run on).</p>';
+  const rows = list
+    .map((v) => {
+      const choice = v.pending ? 'waits for --accept-revision or --relabel' : v.decision ? `${v.decision.choice} (by ${v.decision.by})` : v.affects_data.length ? '' : 'future only';
+      return `<tr><td>${v.number}</td><td><code>${esc(v.sha256.slice(0, 12))}</code></td><td>r${v.round}</td><td>${v.changes}</td><td>${esc(v.affects_data.join(', '))}</td><td>${esc(choice)}</td><td>${v.rounds.map((r) => `r${r}`).join(', ')}</td></tr>`;
+    })
+    .join('\n');
+  return `<table><thead><tr><th>revision</th><th>sha256</th><th>from</th><th>changes</th><th>affects data made</th><th>decision</th><th>rounds run under it</th></tr></thead><tbody>\n${rows}\n</tbody></table>\n<p>The differences: <code>ratchet revisions CAMPAIGN A B</code>.</p>`;
 }

@@ -109,7 +109,7 @@ describe('ratchet check wiring', () => {
     [
       'a malformed pair limit',
       () => ['contacts', at('h2.xyz'), '--pair-limit', 'HH=1'],
-      () => "ratchet: option '--pair-limit <A-B=Å>' argument 'HH=1' is invalid. expected SPECIES-SPECIES=DISTANCE in Å such as O-H=0.8, found 'HH=1'\n",
+      () => "ratchet: option '--pair-limit <A-B=dist>' argument 'HH=1' is invalid. expected SPECIES-SPECIES=DISTANCE in Å such as O-H=0.8, found 'HH=1'\n",
     ],
     ['a negative scale', () => ['contacts', at('h2.xyz'), '--scale', '-1'], () => "ratchet: option '--scale <x>' argument '-1' is invalid. expected a positive number, found '-1'\n"],
     [

@@ -111,8 +111,8 @@ describe('malformed extended XYZ given to ratchet check: exit 2, file and frame 
       expect(r.code, r.stdout + r.stderr).toBe(2);
       expect(r.stdout).toBe('');
       if (/empty XYZ file|blank lines only/.test(item.name)) {
-        // No frame at all: no line to point at. (This message names no file yet: left to the check's owner.)
-        expect(r.stderr).toMatch(/found no frame to judge in the input \(an empty file, or only blank lines\)/);
+        // No frame at all: no line to point at; the file is named.
+        expect(r.stderr).toContain(`${path}: no frame in the file (it is empty or holds only blank lines)`);
       } else {
         expect(r.stderr).toContain(path);
         expect(r.stderr).toMatch(new RegExp(`${path.replace(/[.*+?^${}()|[\]\\]/g, '\\$&')}:\\d+: `));

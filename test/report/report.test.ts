@@ -135,6 +135,10 @@ print(json.dumps(out))`;
     const start = events.find((e) => e.type === 'artifact' && e.role === 'start');
     expect(ids.has(start!.id)).toBe(true);
     expect(report.html).toContain('not a validated potential');
+    // The revision the campaign ran under, from its campaign_revision event, with the rounds run under it.
+    const rev = events.find((e) => e.type === 'campaign_revision');
+    expect(rev).toBeDefined();
+    expect(report.html).toMatch(new RegExp(`<tr><td>1</td><td><code>${rev!.sha256.slice(0, 12)}</code></td><td>r0</td>.*<td>r0, r1</td></tr>`));
   });
 
   it.skipIf(!CHROMIUM)('opens in headless Chromium with every chart drawn, no console error and no request leaving the page', async () => {
