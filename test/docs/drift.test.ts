@@ -91,7 +91,7 @@ describe('environment variables of a task', () => {
   });
 
   for (const [page, anchor] of [
-    ['README.md', /RATCHET_TASK_DIR/],
+    ['docs/tour.md', /RATCHET_TASK_DIR/],
     ['docs/running.md', /^\*\*What each stage's command gets/],
   ] as const) {
     it(`${page}: the paragraph listing the variables names each one`, () => {
