@@ -239,59 +239,38 @@ function parityCharts(d: ReportData): Chart[] {
     }
     return [lo, hi];
   };
+  /** One parity plot: points of `values` (x reference, y predicted) over the dashed equality line. */
+  const parity = (id: string, title: string, caption: string, values: object[], x: string, y: string, what: string, mark: object, color?: string): Chart => {
+    const [lo, hi] = range(values.flatMap((v) => [(v as Record<string, number>)[x], (v as Record<string, number>)[y]]));
+    return {
+      id,
+      title,
+      caption,
+      spec: {
+        $schema: 'https://vega.github.io/schema/vega-lite/v6.json',
+        width: 320,
+        height: 320,
+        layer: [
+          diag(lo, hi),
+          {
+            data: { values },
+            mark,
+            encoding: {
+              x: { field: x, type: 'quantitative', title: `reference ${what}`, scale: { zero: false } },
+              y: { field: y, type: 'quantitative', title: `predicted ${what}`, scale: { zero: false } },
+              ...(color ? { color: { field: color, type: 'nominal' } } : {}),
+            },
+          },
+        ],
+      } as TopLevelSpec,
+    };
+  };
   const fc = `Predicted against reference force components of the latest committee on its held-out frames${where}; the dashed line is equality.`;
   if (!p.forces.length) out.push(none('parity_forces', 'Force parity', fc, p.note ?? 'no held-out predictions yet'));
-  else {
-    const [lo, hi] = range(p.forces.flatMap((f) => [f.reference, f.predicted]));
-    out.push({
-      id: 'parity_forces',
-      title: 'Force parity',
-      caption: fc,
-      spec: {
-        $schema: 'https://vega.github.io/schema/vega-lite/v6.json',
-        width: 320,
-        height: 320,
-        layer: [
-          diag(lo, hi),
-          {
-            data: { values: p.forces },
-            mark: { type: 'point', filled: true, size: 12, opacity: 0.6 },
-            encoding: {
-              x: { field: 'reference', type: 'quantitative', title: 'reference force (eV/Å)' },
-              y: { field: 'predicted', type: 'quantitative', title: 'predicted force (eV/Å)' },
-              color: { field: 'element', type: 'nominal' },
-            },
-          },
-        ],
-      } as TopLevelSpec,
-    });
-  }
+  else out.push(parity('parity_forces', 'Force parity', fc, p.forces, 'reference', 'predicted', 'force (eV/Å)', { type: 'point', filled: true, size: 12, opacity: 0.6 }, 'element'));
   const ec = `Predicted against reference energy per atom of the latest committee on its held-out frames${where}; the dashed line is equality.`;
   if (!p.energies.length) out.push(none('parity_energy', 'Energy parity', ec, p.note ?? 'no held-out predictions with energies yet'));
-  else {
-    const [lo, hi] = range(p.energies.flatMap((e) => [e.reference_eV_per_atom, e.predicted_eV_per_atom]));
-    out.push({
-      id: 'parity_energy',
-      title: 'Energy parity',
-      caption: ec,
-      spec: {
-        $schema: 'https://vega.github.io/schema/vega-lite/v6.json',
-        width: 320,
-        height: 320,
-        layer: [
-          diag(lo, hi),
-          {
-            data: { values: p.energies },
-            mark: { type: 'point', filled: true, size: 30 },
-            encoding: {
-              x: { field: 'reference_eV_per_atom', type: 'quantitative', title: 'reference energy (eV/atom)', scale: { zero: false } },
-              y: { field: 'predicted_eV_per_atom', type: 'quantitative', title: 'predicted energy (eV/atom)', scale: { zero: false } },
-            },
-          },
-        ],
-      } as TopLevelSpec,
-    });
-  }
+  else out.push(parity('parity_energy', 'Energy parity', ec, p.energies, 'reference_eV_per_atom', 'predicted_eV_per_atom', 'energy (eV/atom)', { type: 'point', filled: true, size: 30 }));
   return out;
 }
 
