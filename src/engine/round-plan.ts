@@ -92,7 +92,8 @@ export async function projectRound(o: ProjectOptions): Promise<RoundProjection> 
   // The scratch campaign: the same view with the scratch folder as its home. The campaign folder's own
   // files (start structures, programs, templates, inputs/) and the stages that passed are linked in.
   for (const entry of readdirSync(real.dir)) {
-    if (entry === '.ratchet' || entry === 'rounds') continue;
+    // inputs/ is made afresh in the scratch folder (bringInputsInside copies outside start files there).
+    if (entry === '.ratchet' || entry === 'rounds' || entry === 'inputs') continue;
     symlinkSync(join(real.dir, entry), join(scratch, entry));
   }
   const inside = (path: string): string => (path.startsWith(real.dir + sep) ? scratch + path.slice(real.dir.length) : path);
