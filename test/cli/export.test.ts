@@ -12,9 +12,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import Ajv from 'ajv-draft-04';
-import { runCampaign } from '../../src/engine/run.js';
-import { BufferOutput } from '../../src/engine/output.js';
-import { REPO, campaignYaml, cliArgs, ledgerEvents, makeCampaign, removeCampaigns } from '../engine/fixture.js';
+import { REPO, cliArgs, ledgerEvents, removeCampaigns, twoRoundCampaign } from '../engine/fixture.js';
 
 const outs: string[] = [];
 afterAll(() => {
@@ -22,11 +20,10 @@ afterAll(() => {
   for (const o of outs) rmSync(o, { recursive: true, force: true });
 });
 
-const { dir, file } = makeCampaign();
+let dir = '';
+let file = '';
 beforeAll(async () => {
-  writeFileSync(file, campaignYaml({ maxRounds: 2 }).replace('rounds:\n', 'rounds:\n  explore_unvalidated:\n    max_rounds: 2\n'));
-  const out = new BufferOutput();
-  await runCampaign({ campaign: file, out, error: (m) => out.line(`error: ${m}`) });
+  ({ dir, file } = await twoRoundCampaign());
 }, 240_000);
 
 function cli(...args: string[]) {

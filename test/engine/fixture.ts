@@ -170,3 +170,18 @@ export function cliArgs(): string[] {
   if (existsSync(dist) && statSync(dist).mtimeMs >= newestMtime(join(REPO, 'src'))) return [dist];
   return ['--import', 'tsx', join(REPO, 'src/cli/index.ts')];
 }
+
+/**
+ * A fixture campaign run through two rounds (a failed validation still explores, so both rounds make
+ * trajectories whatever the drift gate says of the invented, very short constant-energy runs): what the
+ * report, audit, PROV and export tests read. Returns the campaign's directory and file.
+ */
+export async function twoRoundCampaign(): Promise<{ dir: string; file: string }> {
+  const { runCampaign } = await import('../../src/engine/run.js');
+  const { BufferOutput } = await import('../../src/engine/output.js');
+  const c = makeCampaign();
+  writeFileSync(c.file, campaignYaml({ maxRounds: 2 }).replace('rounds:\n', 'rounds:\n  explore_unvalidated:\n    max_rounds: 2\n'));
+  const out = new BufferOutput();
+  await runCampaign({ campaign: c.file, out, error: (m) => out.line(`error: ${m}`) });
+  return c;
+}

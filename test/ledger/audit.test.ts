@@ -9,10 +9,8 @@ import { appendFileSync, cpSync, existsSync, mkdtempSync, readFileSync, rmSync, 
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { runCampaign } from '../../src/engine/run.js';
-import { BufferOutput } from '../../src/engine/output.js';
 import { auditCampaign } from '../../src/ledger/audit.js';
-import { REPO, campaignYaml, cliArgs, ledgerEvents, makeCampaign, removeCampaigns } from '../engine/fixture.js';
+import { REPO, cliArgs, ledgerEvents, removeCampaigns, twoRoundCampaign } from '../engine/fixture.js';
 
 const copies: string[] = [];
 afterAll(() => {
@@ -20,11 +18,10 @@ afterAll(() => {
   for (const c of copies) rmSync(c, { recursive: true, force: true });
 });
 
-const { dir, file } = makeCampaign();
+let dir = '';
+let file = '';
 beforeAll(async () => {
-  writeFileSync(file, campaignYaml({ maxRounds: 2 }).replace('rounds:\n', 'rounds:\n  explore_unvalidated:\n    max_rounds: 2\n'));
-  const out = new BufferOutput();
-  await runCampaign({ campaign: file, out, error: (m) => out.line(`error: ${m}`) });
+  ({ dir, file } = await twoRoundCampaign());
 }, 240_000);
 
 /** A fresh copy of the finished campaign (so each case breaks its own). */

@@ -7,14 +7,12 @@
  * copied as data. Validation by `ajv` with its draft-04 build (ajv-draft-04), an independent validator.
  * Its graph must be the one `lineage --json` prints; the DOT text must render with Graphviz's `dot`.
  */
-import { existsSync, readFileSync, writeFileSync } from 'node:fs';
+import { existsSync, readFileSync } from 'node:fs';
 import { spawnSync } from 'node:child_process';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import Ajv from 'ajv-draft-04';
-import { runCampaign } from '../../src/engine/run.js';
-import { BufferOutput } from '../../src/engine/output.js';
-import { REPO, campaignYaml, cliArgs, ledgerEvents, makeCampaign, removeCampaigns } from '../engine/fixture.js';
+import { REPO, cliArgs, ledgerEvents, removeCampaigns, twoRoundCampaign } from '../engine/fixture.js';
 
 afterAll(removeCampaigns);
 
@@ -22,11 +20,10 @@ const DOT = ['/usr/bin/dot', '/usr/local/bin/dot'].find((p) => existsSync(p));
 const schema = JSON.parse(readFileSync(join(REPO, 'test/fixtures/prov-json.schema.json'), 'utf8'));
 const validate = new Ajv.default({ strict: false, allErrors: true }).compile(schema); // CommonJS module: its class is .default
 
-const { dir, file } = makeCampaign();
+let dir = '';
+let file = '';
 beforeAll(async () => {
-  writeFileSync(file, campaignYaml({ maxRounds: 2 }).replace('rounds:\n', 'rounds:\n  explore_unvalidated:\n    max_rounds: 2\n'));
-  const out = new BufferOutput();
-  await runCampaign({ campaign: file, out, error: (m) => out.line(`error: ${m}`) });
+  ({ dir, file } = await twoRoundCampaign());
 }, 240_000);
 
 function lineage(...args: string[]) {

@@ -10,10 +10,8 @@ import { existsSync, mkdirSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { pathToFileURL } from 'node:url';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { runCampaign } from '../../src/engine/run.js';
-import { BufferOutput } from '../../src/engine/output.js';
 import { buildReport, type Report } from '../../src/report/index.js';
-import { campaignYaml, ledgerEvents, makeCampaign, removeCampaigns, REPO } from '../engine/fixture.js';
+import { ledgerEvents, makeCampaign, removeCampaigns, REPO, twoRoundCampaign } from '../engine/fixture.js';
 
 afterAll(removeCampaigns);
 
@@ -25,16 +23,13 @@ function python(code: string, ...args: string[]): string {
 }
 
 describe('the report of a two-round campaign', () => {
-  const { dir, file } = makeCampaign();
+  let dir = '';
+  let file = '';
   let events: Record<string, any>[] = [];
   let report: Report;
 
   beforeAll(async () => {
-    // Two rounds; a failed validation still explores (so the simulate charts have data whatever the
-    // drift gate says of the invented, very short constant-energy runs).
-    writeFileSync(file, campaignYaml({ maxRounds: 2 }).replace('rounds:\n', 'rounds:\n  explore_unvalidated:\n    max_rounds: 2\n'));
-    const out = new BufferOutput();
-    await runCampaign({ campaign: file, out, error: (m) => out.line(`error: ${m}`) });
+    ({ dir, file } = await twoRoundCampaign());
     events = ledgerEvents(dir);
     report = await buildReport(file, { generatedAt: '2026-01-01T00:00:00Z' });
     mkdirSync(ARTIFACTS, { recursive: true });
