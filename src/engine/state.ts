@@ -8,6 +8,7 @@ import type { TaskState } from '../backends/backend.js';
 import { STAGES, type Stage, isStage } from './ids.js';
 import type {
   ArtifactEvent,
+  CampaignRevisionEvent,
   CampaignEndedEvent,
   CampaignIdentityEvent,
   RunEndedEvent,
@@ -73,13 +74,7 @@ export interface StageRecord {
 }
 
 /** One recorded version of the campaign file (campaign_revision), with the person's decision when one was asked. */
-export interface RevisionRecord {
-  sha256: string;
-  number: number;
-  previous?: string;
-  changes: { path: string; old?: unknown; new?: unknown }[];
-  affects_data: string[];
-  round: number;
+export interface RevisionRecord extends Pick<CampaignRevisionEvent, 'sha256' | 'number' | 'previous' | 'changes' | 'affects_data' | 'round'> {
   decision_needed: boolean;
   at: string;
   seq: number;

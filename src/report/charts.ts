@@ -30,18 +30,23 @@ function none(id: string, title: string, caption: string, why: string): Chart {
   return { id, title, caption, spec: null, empty: why };
 }
 
+/** A Vega-Lite v6 specification (the $schema every chart carries). */
+function vegaLite(body: object): TopLevelSpec {
+  return { $schema: 'https://vega.github.io/schema/vega-lite/v6.json', ...body } as TopLevelSpec;
+}
+
+/** A chart with data. */
+function chart(id: string, title: string, caption: string, body: object): Chart {
+  return { id, title, caption, spec: vegaLite(body) };
+}
+
 function confidentChart(d: ReportData): Chart {
   const id = 'confident';
   const title = 'Confident fraction per condition';
   const caption = `Fraction of each condition's kept frames whose committee spread is below the window; the campaign converges when every condition reaches ${d.target}.`;
   const rows = d.confident.filter((c) => c.fraction !== null);
   if (!rows.length) return none(id, title, caption, 'no simulate stage has been judged yet');
-  return {
-    id,
-    title,
-    caption,
-    spec: {
-      $schema: 'https://vega.github.io/schema/vega-lite/v6.json',
+  return chart(id, title, caption, {
       width: W,
       height: H,
       layer: [
@@ -62,8 +67,7 @@ function confidentChart(d: ReportData): Chart {
           ],
         },
       ],
-    } as TopLevelSpec,
-  };
+  });
 }
 
 function spreadChart(d: ReportData): Chart {
@@ -74,12 +78,7 @@ function spreadChart(d: ReportData): Chart {
   if (!d.spreads.length) return none(id, title, caption, 'no committee spreads recorded yet');
   const rounds = new Set(d.spreads.map((x) => x.round)).size;
   if (rounds > MAX_HISTOGRAM_ROWS) return spreadHeatmap(d, id, title);
-  return {
-    id,
-    title,
-    caption,
-    spec: {
-      $schema: 'https://vega.github.io/schema/vega-lite/v6.json',
+  return chart(id, title, caption, {
       data: { values: d.spreads },
       facet: { row: { field: 'round', type: 'ordinal', title: 'round' }, column: { field: 'condition', type: 'nominal', title: 'condition' } },
       spec: {
@@ -104,8 +103,7 @@ function spreadChart(d: ReportData): Chart {
         ],
       },
       resolve: { scale: { y: 'independent' } },
-    } as TopLevelSpec,
-  };
+  });
 }
 
 /** Above this many rounds the spread histograms become one heat map per condition (rows would not fit). */
@@ -127,12 +125,7 @@ function spreadHeatmap(d: ReportData, id: string, title: string): Chart {
         { text: 'runaway', y: last.upper * 1.08 },
       ].flatMap((b) => d.conditions.map((c) => ({ round: last.round, condition: c, spread_eV_per_A: b.y, kind: 'band', text: b.text })))
     : [];
-  return {
-    id,
-    title,
-    caption,
-    spec: {
-      $schema: 'https://vega.github.io/schema/vega-lite/v6.json',
+  return chart(id, title, caption, {
       facet: { column: { field: 'condition', type: 'nominal', title: 'condition' } },
       data: { values: rows.map((r) => ({ ...r, kind: 'frame' })).concat(edges.flatMap((e) => d.conditions.map((c) => ({ round: e.round, condition: c, spread_eV_per_A: e.edge, kind: e.label }))))
           .concat(bands as never[]) },
@@ -165,8 +158,7 @@ function spreadHeatmap(d: ReportData, id: string, title: string): Chart {
           },
         ],
       },
-    } as TopLevelSpec,
-  };
+  });
 }
 
 function errorCharts(d: ReportData): Chart[] {
@@ -215,7 +207,7 @@ function errorCharts(d: ReportData): Chart[] {
       id,
       title,
       caption,
-      spec: { $schema: 'https://vega.github.io/schema/vega-lite/v6.json', hconcat: [panel('energy'), panel('force')], resolve: { scale: { strokeDash: 'independent' } } } as TopLevelSpec,
+      spec: vegaLite({ hconcat: [panel('energy'), panel('force')], resolve: { scale: { strokeDash: 'independent' } } }),
     };
   };
   return [make('errors_round', title1, 'round'), make('errors_frames', title2, 'train_frames')];
@@ -242,12 +234,7 @@ function parityCharts(d: ReportData): Chart[] {
   /** One parity plot: points of `values` (x reference, y predicted) over the dashed equality line. */
   const parity = (id: string, title: string, caption: string, values: object[], x: string, y: string, what: string, mark: object, color?: string): Chart => {
     const [lo, hi] = range(values.flatMap((v) => [(v as Record<string, number>)[x], (v as Record<string, number>)[y]]));
-    return {
-      id,
-      title,
-      caption,
-      spec: {
-        $schema: 'https://vega.github.io/schema/vega-lite/v6.json',
+    return chart(id, title, caption, {
         width: 320,
         height: 320,
         layer: [
@@ -262,8 +249,7 @@ function parityCharts(d: ReportData): Chart[] {
             },
           },
         ],
-      } as TopLevelSpec,
-    };
+    });
   };
   const fc = `Predicted against reference force components of the latest committee on its held-out frames${where}; the dashed line is equality.`;
   if (!p.forces.length) out.push(none('parity_forces', 'Force parity', fc, p.note ?? 'no held-out predictions yet'));
@@ -280,12 +266,7 @@ function driftChart(d: ReportData): Chart {
   const caption = 'Total energy per atom relative to each run\'s first frame; the legend gives each run\'s drift slope and the campaign\'s limit.';
   const rows = d.drift.flatMap((r) => r.points.map((p) => ({ ...p, run: r.label })));
   if (!rows.length) return none(id, title, caption, 'no constant-energy validation run recorded yet');
-  return {
-    id,
-    title,
-    caption,
-    spec: {
-      $schema: 'https://vega.github.io/schema/vega-lite/v6.json',
+  return chart(id, title, caption, {
       width: W,
       height: H,
       data: { values: rows },
@@ -295,8 +276,7 @@ function driftChart(d: ReportData): Chart {
         y: { field: 'energy_meV_per_atom', type: 'quantitative', title: 'E - E(0) (meV/atom)' },
         color: { field: 'run', type: 'nominal', legend: { labelLimit: 600, orient: 'bottom', columns: 1 } },
       },
-    } as TopLevelSpec,
-  };
+  });
 }
 
 function countsChart(d: ReportData): Chart {
@@ -309,12 +289,7 @@ function countsChart(d: ReportData): Chart {
     { round: c.round, kind: 'held out', frames: c.held_out },
   ]);
   if (!rows.length) return none(id, title, caption, 'no label stage has been judged yet');
-  return {
-    id,
-    title,
-    caption,
-    spec: {
-      $schema: 'https://vega.github.io/schema/vega-lite/v6.json',
+  return chart(id, title, caption, {
       width: W,
       height: H,
       data: { values: rows },
@@ -325,8 +300,7 @@ function countsChart(d: ReportData): Chart {
         y: { field: 'frames', type: 'quantitative' },
         color: { field: 'kind', type: 'nominal', title: '' },
       },
-    } as TopLevelSpec,
-  };
+  });
 }
 
 function coreHourCharts(d: ReportData): Chart[] {
@@ -348,8 +322,7 @@ function coreHourCharts(d: ReportData): Chart[] {
       id: 'core_hours',
       title: 'Core-hours per stage and round',
       caption: caption1,
-      spec: {
-        $schema: 'https://vega.github.io/schema/vega-lite/v6.json',
+      spec: vegaLite({
         width: W,
         height: H,
         layer: [
@@ -366,14 +339,13 @@ function coreHourCharts(d: ReportData): Chart[] {
             ? [{ data: { values: [{ b: d.budget.core_hours_per_round }] }, mark: { type: 'rule', strokeDash: [6, 4], color: 'black' }, encoding: { y: { field: 'b', type: 'quantitative' } } }]
             : []),
         ],
-      } as TopLevelSpec,
+      }),
     },
     {
       id: 'core_hours_total',
       title: 'Core-hours against the budget',
       caption: caption2,
-      spec: {
-        $schema: 'https://vega.github.io/schema/vega-lite/v6.json',
+      spec: vegaLite({
         width: W,
         height: 180,
         layer: [
@@ -386,7 +358,7 @@ function coreHourCharts(d: ReportData): Chart[] {
             ? [{ data: { values: [{ b: d.budget.core_hours }] }, mark: { type: 'rule', strokeDash: [6, 4], color: 'black' }, encoding: { y: { field: 'b', type: 'quantitative' } } }]
             : []),
         ],
-      } as TopLevelSpec,
+      }),
     },
   ];
 }
@@ -405,12 +377,7 @@ function lineageChart(d: ReportData): Chart {
   const nodes = d.lineage.nodes.map((n) => ({ ...n, label: n.path.split('/').slice(-3).join('/') }));
   const x = { field: 'x', type: 'quantitative', axis: null, scale: { domain: [-0.5, layers - 0.3] } };
   const y = { field: 'y', type: 'quantitative', axis: null, scale: { domain: [-0.5, rows - 0.5], reverse: true } };
-  return {
-    id,
-    title,
-    caption,
-    spec: {
-      $schema: 'https://vega.github.io/schema/vega-lite/v6.json',
+  return chart(id, title, caption, {
       width: Math.max(W, 170 * layers),
       height: Math.max(120, 26 * rows),
       layer: [
@@ -423,8 +390,7 @@ function lineageChart(d: ReportData): Chart {
           ],
         },
       ],
-    } as TopLevelSpec,
-  };
+  });
 }
 
 /** Render one chart to an SVG string (headless: Vega's own SVG renderer, no canvas, no network). */
